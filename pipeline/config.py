@@ -1,0 +1,377 @@
+"""The ``afterward.toml`` settings: read once at the entry point, validated, typed.
+
+Every problem is reported as :class:`ConfigError` with a one-line message naming the key and the
+allowed values; nothing downstream sees an unchecked setting.
+"""
+
+from __future__ import annotations
+
+import os
+import tomllib
+from dataclasses import dataclass, field
+from pathlib import Path
+from typing import Any
+
+import numpy as np
+
+from pipeline.dates import DAY_COUNTS, WEEKDAYS, BusinessCalendar
+from pipeline.tenors import Tenor, TenorError, parse_tenor
+
+__all__ = [
+    "CHECK_NAMES",
+    "COMPOUNDINGS",
+    "INTERPOLATIONS",
+    "QUOTE_KINDS",
+    "SEVERITIES",
+    "Config",
+    "ConfigError",
+    "CurveConfig",
+    "compounding_frequency",
+    "find_config",
+    "load_config",
+    "parse_config",
+]
+
+QUOTE_KINDS = ("zero", "par", "discount", "simple")
+COMPOUNDINGS = ("continuous", "annual", "semiannual", "quarterly", "monthly", "simple")
+UNITS = ("percent", "decimal", "bp")
+INTERPOLATIONS = ("linear_zero", "log_linear_discount", "monotone_convex", "cubic_zero", "nss")
+FREQUENCIES = ("daily", "monthly")
+DATE_FORMATS = ("iso", "day_first", "month_first")
+SEVERITIES = ("reject", "warn", "info")
+CHECK_NAMES = (
+    "unparseable", "out_of_range", "duplicate", "missing_day", "missing_tenor", "stale_curve",
+    "jump", "inversion", "negative_forward", "non_monotone_discount",
+)
+DEFAULT_SEVERITY = {
+    "unparseable": "reject",
+    "out_of_range": "reject",
+    "duplicate": "warn",
+    "missing_day": "warn",
+    "missing_tenor": "warn",
+    "stale_curve": "warn",
+    "jump": "reject",
+    "inversion": "info",
+    "negative_forward": "warn",
+    "non_monotone_discount": "warn",
+}
+_FREQ = {"continuous": None, "simple": 0, "annual": 1, "semiannual": 2, "quarterly": 4, "monthly": 12}
+
+
+class ConfigError(ValueError):
+    """A bad configuration; the message is one line naming the key and what is allowed."""
+
+
+def compounding_frequency(compounding: str) -> int | None:
+    """Payments a year for ``compounding``: ``None`` continuous, ``0`` simple, else 1, 2, 4 or 12."""
+    return _FREQ[compounding]
+
+
+@dataclass(frozen=True)
+class CurveConfig:
+    """One curve's conventions, as written under ``[curves.NAME]``."""
+
+    name: str
+    files: str = "*.csv"
+    quote: str = "zero"
+    compounding: str = "continuous"
+    day_count: str = "ACT/365F"
+    units: str = "percent"
+    interpolation: str = "monotone_convex"
+    tenors: tuple[Tenor, ...] = ()
+    frequency: str = "daily"
+    calendar: BusinessCalendar = field(default_factory=BusinessCalendar)
+    date_format: str = "iso"
+    forward_starts: tuple[Tenor, ...] = ()
+    forward_tenors: tuple[Tenor, ...] = ()
+    tolerance_days: int = 3
+    jump_bp: float = 75.0
+    outlier_mads: float = 8.0
+    stale_days: int = 5
+    inversion_pairs: tuple[tuple[Tenor, Tenor], ...] = ()
+    severity: dict[str, str] = field(default_factory=lambda: dict(DEFAULT_SEVERITY))
+    premium_window_days: int = 250
+
+    @property
+    def frequency_per_year(self) -> int | None:
+        return compounding_frequency(self.compounding)
+
+    @property
+    def tenor_labels(self) -> tuple[str, ...]:
+        return tuple(t.label for t in self.tenors)
+
+
+@dataclass(frozen=True)
+class Config:
+    """The whole configuration; paths are absolute (relative ones resolved against the file)."""
+
+    path: Path | None
+    store_path: Path
+    inbox: Path
+    loaded: Path
+    refused: Path
+    curves: dict[str, CurveConfig]
+    schedule_cron: str = "30 18 * * 1-5"
+    schedule_timezone: str = "UTC"
+
+    def curve(self, name: str) -> CurveConfig:
+        try:
+            return self.curves[name]
+        except KeyError:
+            known = ", ".join(sorted(self.curves)) or "(none configured)"
+            raise ConfigError(f"unknown curve {name!r}; configured curves: {known}") from None
+
+
+def find_config(explicit: str | os.PathLike[str] | None = None) -> Path:
+    """``--config PATH``, else ``$AFTERWARD_CONFIG``, else ``./afterward.toml``."""
+    if explicit:
+        return Path(explicit)
+    env = os.environ.get("AFTERWARD_CONFIG")
+    if env:
+        return Path(env)
+    return Path.cwd() / "afterward.toml"
+
+
+def load_config(path: str | os.PathLike[str]) -> Config:
+    p = Path(path)
+    if not p.is_file():
+        raise ConfigError(f"config file not found: {p} (run 'afterward init' to write one)")
+    try:
+        data = tomllib.loads(p.read_text(encoding="utf-8-sig"))
+    except UnicodeDecodeError:
+        raise ConfigError(f"{p}: not a UTF-8 text file") from None
+    except tomllib.TOMLDecodeError as exc:
+        raise ConfigError(f"{p}: not valid TOML: {exc}") from None
+    return parse_config(data, base=p.resolve().parent, path=p.resolve())
+
+
+# --- validation helpers -------------------------------------------------------------------------
+
+def _check_keys(table: dict[str, Any], allowed: set[str], where: str) -> None:
+    for key in table:
+        if key not in allowed:
+            raise ConfigError(f"unknown key {where}{key!r}; allowed: {', '.join(sorted(allowed))}")
+
+
+def _choice(table: dict[str, Any], key: str, allowed: tuple[str, ...], default: str, where: str) -> str:
+    value = table.get(key, default)
+    if not isinstance(value, str):
+        raise ConfigError(f"{where}{key} must be a string; allowed: {', '.join(allowed)}")
+    for option in allowed:
+        if value.lower() == option.lower():
+            return option
+    raise ConfigError(f"{where}{key} = {value!r} is not allowed; allowed: {', '.join(allowed)}")
+
+
+def _number(table: dict[str, Any], key: str, default: float, where: str, *, integer: bool = False,
+            minimum: float = 0) -> Any:
+    value = table.get(key, default)
+    ok = isinstance(value, int) if integer else isinstance(value, int | float)
+    if isinstance(value, bool) or not ok or value < minimum:
+        kind = "an integer" if integer else "a number"
+        raise ConfigError(f"{where}{key} = {value!r} must be {kind} >= {minimum}")
+    return value
+
+
+def _tenor_list(value: Any, key: str, *, allow_zero: bool = False) -> tuple[Tenor, ...]:
+    if not isinstance(value, list) or not all(isinstance(v, str) for v in value):
+        raise ConfigError(f"{key} must be a list of tenor labels such as [\"3M\", \"1Y\"]")
+    try:
+        tenors = [parse_tenor(v, allow_zero=allow_zero) for v in value]
+    except TenorError as exc:
+        raise ConfigError(f"{key}: {exc}") from None
+    if len({t.label for t in tenors}) != len(tenors):
+        raise ConfigError(f"{key} lists the same tenor twice")
+    return tuple(sorted(tenors))
+
+
+def _month_tenors(value: Any, key: str, *, allow_zero: bool) -> tuple[Tenor, ...]:
+    tenors = _tenor_list(value, key, allow_zero=allow_zero)
+    for t in tenors:
+        if t.months is None:
+            raise ConfigError(f"{key}: {t.label} is not a whole number of months (use nM or nY)")
+    return tenors
+
+
+def _holidays(cal: dict[str, Any], base: Path, where: str) -> list[np.datetime64]:
+    out: list[np.datetime64] = []
+    listed = cal.get("holidays", [])
+    if not isinstance(listed, list):
+        raise ConfigError(f"{where}calendar.holidays must be a list of ISO dates")
+    for v in listed:
+        try:
+            out.append(np.datetime64(str(v), "D"))
+        except ValueError:
+            raise ConfigError(f"{where}calendar.holidays: {v!r} is not an ISO date (YYYY-MM-DD)") from None
+    if "holidays_file" in cal:
+        hp = Path(str(cal["holidays_file"]))
+        hp = hp if hp.is_absolute() else base / hp
+        if not hp.is_file():
+            raise ConfigError(f"{where}calendar.holidays_file: file not found: {hp}")
+        for n, line in enumerate(hp.read_text(encoding="utf-8-sig").splitlines(), start=1):
+            text = line.split(",")[0].strip()
+            if not text or text.startswith("#") or text.lower() in ("date", "holiday"):
+                continue
+            try:
+                out.append(np.datetime64(text, "D"))
+            except ValueError:
+                raise ConfigError(f"{hp}:{n}: {text!r} is not an ISO date (YYYY-MM-DD)") from None
+    return out
+
+
+def _parse_curve(name: str, t: dict[str, Any], base: Path) -> CurveConfig:
+    w = f"curves.{name}."
+    allowed = {
+        "files", "quote", "compounding", "day_count", "units", "interpolation", "tenors", "frequency",
+        "calendar", "forward", "realize", "checks", "date_format", "audit",
+    }
+    _check_keys(t, allowed, w)
+    if "tenors" not in t:
+        raise ConfigError(f"{w}tenors is required: the expected tenors, e.g. [\"3M\", \"1Y\", \"10Y\"]")
+    tenors = _tenor_list(t["tenors"], f"{w}tenors")
+    if not tenors:
+        raise ConfigError(f"{w}tenors must list at least one tenor")
+
+    cal = t.get("calendar", {})
+    if not isinstance(cal, dict):
+        raise ConfigError(f"{w}calendar must be a table with weekend / holidays / holidays_file")
+    _check_keys(cal, {"weekend", "holidays", "holidays_file"}, f"{w}calendar.")
+    weekend = cal.get("weekend", ["Sat", "Sun"])
+    if not isinstance(weekend, list):
+        raise ConfigError(f"{w}calendar.weekend must be a list; allowed days: {', '.join(WEEKDAYS)}")
+    norm_weekend = []
+    for d in weekend:
+        match = [x for x in WEEKDAYS if isinstance(d, str) and x.lower() == d.strip().lower()[:3]]
+        if not match:
+            raise ConfigError(f"{w}calendar.weekend: {d!r} is not a weekday; allowed: {', '.join(WEEKDAYS)}")
+        norm_weekend.append(match[0])
+    if len(set(norm_weekend)) == 7:
+        raise ConfigError(f"{w}calendar.weekend cannot hold all seven days")
+    calendar = BusinessCalendar.of(norm_weekend, _holidays(cal, base, w))
+
+    fwd = t.get("forward", {})
+    if not isinstance(fwd, dict):
+        raise ConfigError(f"{w}forward must be a table with starts / tenors")
+    _check_keys(fwd, {"starts", "tenors"}, f"{w}forward.")
+    starts = _month_tenors(fwd.get("starts", ["0M", "3M", "6M", "1Y", "2Y"]), f"{w}forward.starts",
+                           allow_zero=True)
+    fwd_tenors = _month_tenors(fwd.get("tenors", ["3M", "1Y"]), f"{w}forward.tenors", allow_zero=False)
+
+    rel = t.get("realize", {})
+    if not isinstance(rel, dict):
+        raise ConfigError(f"{w}realize must be a table with tolerance_days")
+    _check_keys(rel, {"tolerance_days"}, f"{w}realize.")
+    tolerance = _number(rel, "tolerance_days", 3, f"{w}realize.", integer=True)
+
+    chk = t.get("checks", {})
+    if not isinstance(chk, dict):
+        raise ConfigError(f"{w}checks must be a table")
+    _check_keys(chk, {"jump_bp", "inversion_pairs", "severity", "stale_days", "outlier_mads"}, f"{w}checks.")
+    jump_bp = float(_number(chk, "jump_bp", 75, f"{w}checks.", minimum=0))
+    stale_days = _number(chk, "stale_days", 5, f"{w}checks.", integer=True, minimum=2)
+    outlier_mads = float(_number(chk, "outlier_mads", 8, f"{w}checks.", minimum=1))
+    pairs_raw = chk.get("inversion_pairs", [])
+    pairs: list[tuple[Tenor, Tenor]] = []
+    if not isinstance(pairs_raw, list):
+        raise ConfigError(f"{w}checks.inversion_pairs must be a list of [short, long] tenor pairs")
+    for pair in pairs_raw:
+        if not (isinstance(pair, list) and len(pair) == 2):
+            raise ConfigError(f"{w}checks.inversion_pairs: {pair!r} is not a [short, long] pair")
+        short, long = _tenor_list(pair, f"{w}checks.inversion_pairs")
+        for x in (short, long):
+            if x not in tenors:
+                raise ConfigError(f"{w}checks.inversion_pairs: {x.label} is not one of {w}tenors")
+        pairs.append((short, long))
+    severity = dict(DEFAULT_SEVERITY)
+    sev_raw = chk.get("severity", {})
+    if not isinstance(sev_raw, dict):
+        raise ConfigError(f"{w}checks.severity must be a table of check = severity")
+    _check_keys(sev_raw, set(CHECK_NAMES), f"{w}checks.severity.")
+    for check, value in sev_raw.items():
+        severity[check] = _choice(sev_raw, check, SEVERITIES, "warn", f"{w}checks.severity.")
+
+    aud = t.get("audit", {})
+    if not isinstance(aud, dict):
+        raise ConfigError(f"{w}audit must be a table with premium_window_days")
+    _check_keys(aud, {"premium_window_days"}, f"{w}audit.")
+    window = _number(aud, "premium_window_days", 250, f"{w}audit.", integer=True, minimum=2)
+
+    files = t.get("files", f"{name}_*.csv")
+    if not isinstance(files, str) or not files:
+        raise ConfigError(f"{w}files must be a file-name glob such as \"{name}_*.csv\"")
+
+    return CurveConfig(
+        name=name,
+        files=files,
+        quote=_choice(t, "quote", QUOTE_KINDS, "zero", w),
+        compounding=_choice(t, "compounding", COMPOUNDINGS, "continuous", w),
+        day_count=_choice(t, "day_count", DAY_COUNTS, "ACT/365F", w),
+        units=_choice(t, "units", UNITS, "percent", w),
+        interpolation=_choice(t, "interpolation", INTERPOLATIONS, "monotone_convex", w),
+        tenors=tenors,
+        frequency=_choice(t, "frequency", FREQUENCIES, "daily", w),
+        calendar=calendar,
+        date_format=_choice(t, "date_format", DATE_FORMATS, "iso", w),
+        forward_starts=starts,
+        forward_tenors=fwd_tenors,
+        tolerance_days=tolerance,
+        jump_bp=jump_bp,
+        outlier_mads=outlier_mads,
+        stale_days=stale_days,
+        inversion_pairs=tuple(pairs),
+        severity=severity,
+        premium_window_days=window,
+    )
+
+
+def _path(table: dict[str, Any], key: str, default: str, base: Path, where: str) -> Path:
+    value = table.get(key, default)
+    if not isinstance(value, str) or not value:
+        raise ConfigError(f"{where}{key} must be a path string")
+    p = Path(value).expanduser()
+    return p if p.is_absolute() else (base / p)
+
+
+def parse_config(data: dict[str, Any], *, base: Path, path: Path | None = None) -> Config:
+    """Validate a parsed TOML document. Relative paths are taken relative to ``base``."""
+    _check_keys(data, {"store", "inbox", "curves", "schedule"}, "")
+    store = data.get("store", {})
+    inbox = data.get("inbox", {})
+    sched = data.get("schedule", {})
+    for key, table in (("store", store), ("inbox", inbox), ("schedule", sched)):
+        if not isinstance(table, dict):
+            raise ConfigError(f"[{key}] must be a table")
+    _check_keys(store, {"path"}, "store.")
+    _check_keys(inbox, {"path", "loaded", "refused"}, "inbox.")
+    _check_keys(sched, {"cron", "timezone"}, "schedule.")
+    curves_raw = data.get("curves", {})
+    if not isinstance(curves_raw, dict) or not curves_raw:
+        raise ConfigError("[curves.NAME] is required: configure at least one curve")
+    curves = {}
+    for name, table in curves_raw.items():
+        if not name.replace("_", "").replace("-", "").isalnum():
+            raise ConfigError(f"curves.{name}: a curve name may hold letters, digits, '_' and '-' only")
+        if not isinstance(table, dict):
+            raise ConfigError(f"curves.{name} must be a table")
+        curves[name] = _parse_curve(name, table, base)
+    inbox_path = _path(inbox, "path", "inbox", base, "inbox.")
+    cron = sched.get("cron", "30 18 * * 1-5")
+    if not isinstance(cron, str) or len(cron.split()) != 5:
+        raise ConfigError(f"schedule.cron = {cron!r} must be a five-field cron expression")
+    tz = sched.get("timezone", "UTC")
+    try:
+        from zoneinfo import ZoneInfo
+
+        ZoneInfo(str(tz))
+    except Exception:
+        raise ConfigError(f"schedule.timezone = {tz!r} is not an IANA time zone (e.g. \"Europe/Paris\")") from None
+    return Config(
+        path=path,
+        store_path=_path(store, "path", "afterward.duckdb", base, "store."),
+        inbox=inbox_path,
+        loaded=_path(inbox, "loaded", str(inbox_path / "loaded"), base, "inbox."),
+        refused=_path(inbox, "refused", str(inbox_path / "refused"), base, "inbox."),
+        curves=curves,
+        schedule_cron=cron,
+        schedule_timezone=str(tz),
+    )
