@@ -287,7 +287,7 @@ def _parse_curve(name: str, t: dict[str, Any], base: Path) -> CurveConfig:
     if not isinstance(sev_raw, dict):
         raise ConfigError(f"{w}checks.severity must be a table of check = severity")
     _check_keys(sev_raw, set(CHECK_NAMES), f"{w}checks.severity.")
-    for check, value in sev_raw.items():
+    for check in sev_raw:
         severity[check] = _choice(sev_raw, check, SEVERITIES, "warn", f"{w}checks.severity.")
 
     aud = t.get("audit", {})

@@ -1,0 +1,107 @@
+"""The one place that opens the store.
+
+DuckDB allows one read-write process or many read-only processes, never both. So: writers keep their
+transactions short and close promptly; a connection that finds the file locked retries with backoff
+and then fails with :class:`StoreLocked`, whose message names the process holding the lock.
+"""
+
+from __future__ import annotations
+
+import os
+import re
+import time
+from collections.abc import Iterator
+from contextlib import contextmanager
+from pathlib import Path
+
+import duckdb
+
+from warehouse.schema import apply_schema, schema_version
+
+__all__ = ["StoreError", "StoreLocked", "StoreMissing", "connect", "reader", "writer"]
+
+
+class StoreError(RuntimeError):
+    """A problem with the store that the user can act on; the message is one line."""
+
+
+class StoreLocked(StoreError):
+    """Another process holds the store's write lock."""
+
+
+class StoreMissing(StoreError):
+    """No store at the configured path."""
+
+
+_LOCK = re.compile(r"lock", re.IGNORECASE)
+_PID = re.compile(r"PID (\d+)")
+
+
+def _lock_message(path: Path, exc: Exception) -> str:
+    pid = _PID.search(str(exc))
+    holder = f"process {pid.group(1)}" if pid else "another process"
+    return (f"the store {path} is locked by {holder} (a load or build is running); "
+            "try again when it finishes")
+
+
+def connect(path: str | os.PathLike[str], *, read_only: bool = False, wait_seconds: float = 10.0,
+            create: bool = False, external_access: bool = True) -> duckdb.DuckDBPyConnection:
+    """Open the store at ``path``.
+
+    A writer (``read_only=False``) brings the schema up to date. A reader needs an existing store.
+    While another process holds the lock, retries with backoff for up to ``wait_seconds``.
+    ``external_access=False`` stops SQL from reading or writing files outside the store.
+    """
+    p = Path(path)
+    if not p.exists() and (read_only or not create):
+        raise StoreMissing(f"no store at {p} (run 'afterward init' or 'afterward load' first)")
+    if p.exists() and p.is_dir():
+        raise StoreError(f"the store path {p} is a directory, not a DuckDB file")
+    config: dict[str, str | bool] = {}
+    if not external_access:
+        config["enable_external_access"] = False
+    deadline = time.monotonic() + wait_seconds
+    delay = 0.05
+    while True:
+        try:
+            con = duckdb.connect(str(p), read_only=read_only, config=config)
+            break
+        except duckdb.IOException as exc:
+            if not _LOCK.search(str(exc)):
+                raise StoreError(f"cannot open the store {p}: {str(exc).splitlines()[0]}") from None
+            if time.monotonic() >= deadline:
+                raise StoreLocked(_lock_message(p, exc)) from None
+            time.sleep(delay)
+            delay = min(delay * 2, 1.0)
+        except duckdb.Error as exc:
+            raise StoreError(f"cannot open the store {p}: {str(exc).splitlines()[0]}") from None
+    try:
+        if read_only:
+            if schema_version(con) == 0:
+                raise StoreError(f"{p} is not an afterward store (no schema found)")
+        else:
+            apply_schema(con)
+    except BaseException:
+        con.close()
+        raise
+    return con
+
+
+@contextmanager
+def writer(path: str | os.PathLike[str], **kwargs: object) -> Iterator[duckdb.DuckDBPyConnection]:
+    """The one writer, closed on exit so the lock is held no longer than needed."""
+    con = connect(path, read_only=False, create=True, **kwargs)  # type: ignore[arg-type]
+    try:
+        yield con
+    finally:
+        con.close()
+
+
+@contextmanager
+def reader(path: str | os.PathLike[str], **kwargs: object) -> Iterator[duckdb.DuckDBPyConnection]:
+    """A read-only connection, closed on exit."""
+    con = connect(path, read_only=True, **kwargs)  # type: ignore[arg-type]
+    try:
+        yield con
+    finally:
+        con.close()
