@@ -97,15 +97,15 @@ def prepare_quotes(result: ReadResult, cfg: Config, curve: str | None,
         repeat = (~conflict) & (part["line"] != first_line).to_numpy()
         if conflict.any():
             bad = part.loc[conflict]
-            lines = bad.groupby(key)["line"].apply(lambda s: ", ".join(str(x) for x in sorted(s)))
-            values = bad.groupby(key)["rate"].apply(lambda s: ", ".join(f"{x:.6g}" for x in s))
-            joined = bad.join(lines.rename("lines"), on=key).join(values.rename("values"), on=key)
+            lines = bad.groupby(key)["line"].apply(lambda s: ", ".join(str(x) for x in sorted(s))).rename("lines")
+            values = bad.groupby(key)["rate"].apply(lambda s: ", ".join(f"{x:.6g}" for x in s)).rename("values")
+            joined = bad.join(lines, on=key).join(values, on=key)
             rejected.append(_reject(joined, np.ones(len(joined), bool),
                                     "duplicate: conflicting values " + joined["values"].to_numpy(dtype=object)
                                     + " on lines " + joined["lines"].to_numpy(dtype=object), "duplicate"))
-            d = lines.reset_index().merge(values.reset_index(), on=key)
+            d = pd.concat([lines, values], axis=1).reset_index()
             d["curve"] = name
-            d["detail"] = ("values " + d["values"] + " on lines " + d["lines"] + " of one file")
+            d["detail"] = "values " + d["values"] + " on lines " + d["lines"] + " of one file"
             dup_findings.append(d[["curve", "as_of", "tenor", "lines", "detail"]])
         if repeat.any():
             rejected.append(_reject(part, repeat, "duplicate: repeats line "

@@ -71,8 +71,13 @@ class ReadResult:
 
 
 def to_decimal(values: np.ndarray, units: str) -> np.ndarray:
-    """File units (``percent``, ``decimal`` or ``bp``) to decimals (0.0525 = 5.25 %)."""
-    return np.asarray(values, dtype=float) / UNIT_DIVISORS[units]
+    """File units (``percent``, ``decimal`` or ``bp``) to decimals (0.0525 = 5.25 %).
+
+    Percent and bp are rounded to 14 decimals after dividing, so that 4.10 % is stored as 0.041 and
+    not 0.040999999999999995 (far below any quoted precision: 1e-10 bp)."""
+    divisor = UNIT_DIVISORS[units]
+    out = np.asarray(values, dtype=float) / divisor
+    return out if divisor == 1.0 else np.round(out, 14)
 
 
 def _empty_rows() -> pd.DataFrame:

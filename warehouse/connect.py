@@ -44,12 +44,20 @@ def _lock_message(path: Path, exc: Exception) -> str:
             "try again when it finishes")
 
 
-def connect(path: str | os.PathLike[str], *, read_only: bool = False, wait_seconds: float = 10.0,
+def _default_wait() -> float:
+    try:
+        return float(os.environ.get("AFTERWARD_LOCK_WAIT", "10"))
+    except ValueError:
+        return 10.0
+
+
+def connect(path: str | os.PathLike[str], *, read_only: bool = False, wait_seconds: float | None = None,
             create: bool = False, external_access: bool = True) -> duckdb.DuckDBPyConnection:
     """Open the store at ``path``.
 
     A writer (``read_only=False``) brings the schema up to date. A reader needs an existing store.
-    While another process holds the lock, retries with backoff for up to ``wait_seconds``.
+    While another process holds the lock, retries with backoff for up to ``wait_seconds`` (default
+    ``$AFTERWARD_LOCK_WAIT`` or 10 s).
     ``external_access=False`` stops SQL from reading or writing files outside the store.
     """
     p = Path(path)
@@ -60,7 +68,7 @@ def connect(path: str | os.PathLike[str], *, read_only: bool = False, wait_secon
     config: dict[str, str | bool] = {}
     if not external_access:
         config["enable_external_access"] = False
-    deadline = time.monotonic() + wait_seconds
+    deadline = time.monotonic() + (_default_wait() if wait_seconds is None else wait_seconds)
     delay = 0.05
     while True:
         try:

@@ -1,0 +1,183 @@
+"""The archive's promises on a real DuckDB file: lineage, idempotent loads, versioned restatements,
+every row in exactly one place, and a load killed mid-way leaving the store as it was."""
+
+from __future__ import annotations
+
+import os
+import random
+import signal
+import subprocess
+import sys
+import time
+from pathlib import Path
+
+import duckdb
+import pyarrow as pa
+import pyarrow.parquet as pq
+import pytest
+
+from flows.steps import load_files
+from pipeline.config import load_config
+from tests.conftest import REPO
+
+JAN = (
+    "date,3M,1Y,2Y,5Y,10Y\n"
+    "2031-01-02,4.10,4.20,4.30,4.50,4.80\n"
+    "2031-01-03,4.11,4.21,4.31,4.51,4.81\n"
+    "2031-01-06,4.12,4.22,,4.52,4.82\n"
+)
+RESTATE = (
+    "date,3M,1Y,2Y,5Y,10Y\n"
+    "2031-01-03,4.11,4.25,4.31,4.55,4.81\n"     # 1Y and 5Y restated, the rest re-sent unchanged
+)
+
+
+def _q(cfg, query: str, params=None):
+    with duckdb.connect(str(cfg.store_path), read_only=True) as con:
+        return con.execute(query, params or []).fetchall()
+
+
+def _write(p: Path, text: str) -> Path:
+    p.write_text(text, encoding="utf-8")
+    return p
+
+
+def test_load_records_lineage_and_counts(project):
+    cfg = load_config(project / "afterward.toml")
+    f = _write(project / "govt_2031-01.csv", JAN + "2031-01-0?,garbled\n")
+    [out] = load_files(cfg, [f])
+    assert (out.status, out.rows_read, out.rows_accepted, out.rows_rejected) == ("loaded", 15, 14, 1)
+    [(sha, read, acc, rej, status)] = _q(cfg, "SELECT sha256, rows_read, rows_accepted, rows_rejected, status FROM loads")
+    import hashlib
+
+    assert sha == hashlib.sha256(f.read_bytes()).hexdigest()
+    assert (read, acc, rej, status) == (15, 14, 1, "loaded")
+    assert read == acc + rej
+    assert _q(cfg, "SELECT count(*) FROM quotes")[0][0] == 14
+    [(line, raw, reason)] = _q(cfg, "SELECT line, raw, reason FROM rejected_rows")
+    assert line == 5 and raw == "2031-01-0?,garbled" and "not a valid date" in reason
+    # maturity: 2 Jan 2031 + 3M = 2 Apr 2031 (a Wednesday), rolled nowhere
+    assert str(_q(cfg, "SELECT maturity_date FROM quotes WHERE as_of = DATE '2031-01-02' AND tenor = '3M'")[0][0]) \
+        == "2031-04-02"
+
+
+def test_same_file_twice_is_already_loaded_and_changes_nothing(project):
+    cfg = load_config(project / "afterward.toml")
+    f = _write(project / "govt_2031-01.csv", JAN)
+    load_files(cfg, [f])
+    before = _q(cfg, "SELECT * FROM quote_history ORDER BY ALL")
+    copy = _write(project / "govt_copy.csv", JAN)   # same bytes under another name
+    outs = load_files(cfg, [f, copy])
+    assert [o.status for o in outs] == ["already loaded", "already loaded"]
+    assert _q(cfg, "SELECT * FROM quote_history ORDER BY ALL") == before
+    assert _q(cfg, "SELECT count(*) FROM loads")[0][0] == 1
+
+
+def test_restatement_supersedes_and_keeps_the_old_version(project):
+    cfg = load_config(project / "afterward.toml")
+    load_files(cfg, [_write(project / "govt_2031-01.csv", JAN)])
+    t_between = _q(cfg, "SELECT max(finished_at) FROM loads")[0][0]
+    time.sleep(0.01)
+    [out] = load_files(cfg, [_write(project / "govt_restated.csv", RESTATE)])
+    assert (out.rows_accepted, out.rows_revised, out.rows_unchanged, out.rows_new) == (5, 2, 3, 0)
+    hist = _q(cfg, "SELECT rate, superseded_at IS NULL FROM quote_history "
+                   "WHERE as_of = DATE '2031-01-03' AND tenor = '1Y' ORDER BY recorded_at")
+    assert hist == [(pytest.approx(0.0421), False), (pytest.approx(0.0425), True)]
+    assert _q(cfg, "SELECT rate FROM quotes WHERE as_of = DATE '2031-01-03' AND tenor = '1Y'")[0][0] \
+        == pytest.approx(0.0425)
+    # as it stood before the restatement
+    assert _q(cfg, "SELECT rate FROM quotes_as_of(?) WHERE as_of = DATE '2031-01-03' AND tenor = '1Y'",
+              [t_between])[0][0] == pytest.approx(0.0421)
+    assert _q(cfg, "SELECT count(*) FROM quotes")[0][0] == 14
+    assert _q(cfg, "SELECT count(*) FROM quote_history")[0][0] == 16
+
+
+def test_duplicates_within_a_file(project):
+    cfg = load_config(project / "afterward.toml")
+    text = JAN + "2031-01-02,4.10,4.20,4.30,4.50,4.80\n" + "2031-01-06,4.99,,,,\n"
+    [out] = load_files(cfg, [_write(project / "govt_dup.csv", text)])
+    reasons = _q(cfg, "SELECT line, reason FROM rejected_rows ORDER BY line, reason")
+    # line 5 repeats line 2 exactly: five repeats rejected; line 6 conflicts with line 4 on 3M: both rejected
+    assert sum("repeats line 2" in r for _, r in reasons) == 5
+    conflicts = [(line, r) for line, r in reasons if "conflicting" in r]
+    assert sorted(line for line, _ in conflicts) == [4, 6]
+    assert out.rows_read == out.rows_accepted + out.rows_rejected == 20
+    assert _q(cfg, "SELECT count(*) FROM quotes WHERE as_of = DATE '2031-01-06' AND tenor = '3M'")[0][0] == 0
+
+
+def test_units_and_routing(project):
+    cfg = load_config(project / "afterward.toml")
+    t = pa.table({"date": pa.array([18993, 18993], type=pa.date32()), "tenor": ["1M", "7Y"],
+                  "rate": [0.031, 0.04]})
+    p = project / "swap_2022-01.parquet"
+    pq.write_table(t, p)
+    [out] = load_files(cfg, [p])
+    assert out.rows_accepted == 1 and out.rows_rejected == 1    # 7Y is not a swap tenor
+    assert _q(cfg, "SELECT curve, tenor, rate FROM quotes") == [("swap", "1M", pytest.approx(0.031))]
+    assert "not one of curves.swap.tenors" in _q(cfg, "SELECT reason FROM rejected_rows")[0][0]
+    [out] = load_files(cfg, [_write(project / "mystery.csv", JAN)])
+    assert out.rows_accepted == 0 and out.rows_rejected == 14
+    assert "matches no curve" in _q(cfg, "SELECT reason FROM rejected_rows WHERE load_id = 2 LIMIT 1")[0][0]
+
+
+def test_unreadable_file_is_refused_and_recorded(project):
+    cfg = load_config(project / "afterward.toml")
+    p = project / "govt_bin.csv"
+    p.write_bytes(b"\x00\x01\x02\x03" * 100)
+    [out] = load_files(cfg, [p])
+    assert out.status == "refused" and "binary" in (out.detail or "")
+    assert _q(cfg, "SELECT status, rows_read FROM loads") == [("refused", 0)]
+    assert _q(cfg, "SELECT line FROM rejected_rows") == [(0,)]
+
+
+def _big_file(path: Path, days: int) -> Path:
+    import numpy as np
+
+    d = np.arange(np.datetime64("1901-01-01"), np.datetime64("1901-01-01") + days)
+    lines = ["date,3M,1Y,2Y,5Y,10Y"] + [f"{x},4.1,4.2,4.3,4.5,4.8" for x in d.astype(str)]
+    path.write_text("\n".join(lines) + "\n", encoding="utf-8")
+    return path
+
+
+def _snapshot(cfg) -> tuple:
+    with duckdb.connect(str(cfg.store_path), read_only=True) as con:
+        return (
+            con.execute("SELECT * FROM quote_history ORDER BY ALL").fetchall(),
+            con.execute("SELECT load_id, sha256, rows_read, rows_accepted, status FROM loads ORDER BY ALL").fetchall(),
+            con.execute("SELECT * FROM rejected_rows ORDER BY ALL").fetchall(),
+        )
+
+
+@pytest.mark.slow
+def test_sigkill_during_load_leaves_the_store_as_it_was(project):
+    """A load killed at a random moment: the file is either wholly in the store or wholly absent."""
+    cfg = load_config(project / "afterward.toml")
+    load_files(cfg, [_write(project / "govt_2031-01.csv", JAN)])
+    big = _big_file(project / "govt_big.csv", 40_000)
+    rng = random.Random(20311)
+    outcomes = []
+    for trial in range(12):
+        before = _snapshot(cfg)
+        proc = subprocess.Popen(
+            [sys.executable, "-m", "flows.cli", "load", str(big)], cwd=project,
+            env={**os.environ, "PYTHONPATH": str(REPO)}, stdout=subprocess.DEVNULL, stderr=subprocess.DEVNULL,
+        )
+        # kill times creep later each trial, so some land before, some inside the transaction
+        time.sleep(rng.uniform(0.1, 0.4) + 0.2 * trial)
+        proc.send_signal(signal.SIGKILL)
+        proc.wait()
+        after = _snapshot(cfg)
+        loaded = [r for r in after[1] if r[4] == "loaded" and r not in before[1]]
+        if loaded:
+            outcomes.append("complete")
+            [(load_id, _sha, read, accepted, _st)] = loaded
+            assert read == accepted == 200_000
+            assert len(after[0]) == len(before[0]) + 200_000
+            break          # the file is in: later loads would only say "already loaded"
+        outcomes.append("absent")
+        assert after == before, "a killed load left part of a file behind"
+    # and a rerun completes the work
+    [out] = load_files(cfg, [big])
+    assert out.status in ("loaded", "already loaded")
+    assert _q(cfg, "SELECT count(*) FROM quotes")[0][0] == 14 + 200_000
+    assert "absent" in outcomes, f"no trial killed the load mid-way: {outcomes}"
