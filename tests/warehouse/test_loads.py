@@ -47,7 +47,8 @@ def test_load_records_lineage_and_counts(project):
     f = _write(project / "govt_2031-01.csv", JAN + "2031-01-0?,garbled\n")
     [out] = load_files(cfg, [f])
     assert (out.status, out.rows_read, out.rows_accepted, out.rows_rejected) == ("loaded", 15, 14, 1)
-    [(sha, read, acc, rej, status)] = _q(cfg, "SELECT sha256, rows_read, rows_accepted, rows_rejected, status FROM loads")
+    [(sha, read, acc, rej, status)] = _q(
+        cfg, "SELECT sha256, rows_read, rows_accepted, rows_rejected, status FROM loads")
     import hashlib
 
     assert sha == hashlib.sha256(f.read_bytes()).hexdigest()
