@@ -1,0 +1,341 @@
+"""The forecast audit: how well each forward forecast the rate realised on its target date.
+
+Input is the outcome record of :func:`pipeline.realize.realize` (plus ``curve`` and ``inverted``);
+output is one row of statistics per curve x start x tenor x regime (:func:`summarize`), a
+trailing-window term premium with a HAC band (:func:`term_premium`) and a plain-language line per
+horizon (:func:`verdict`). Errors are in basis points, rates in decimals.
+
+Choices made here (the contract leaves them open):
+
+* **Overlap.** Forecasts made on consecutive days of the same horizon share most of their future,
+  so their errors are serially correlated (MA(h-1) under the null). ``h`` is
+  :func:`overlap_horizon`; every HAC figure uses Newey-West (Bartlett) with ``max(h-1, 0)`` lags.
+* **Too few outcomes.** A (curve, start, tenor, regime) with no outcome gets no row. With ``n >= 1``
+  the row carries n, dates, mean, median, RMSE, MAE, the no-change RMSE and ratio and the hit rate
+  (``std_error_bp`` needs n >= 2). The HAC figures (``hac_t, hac_se_bp, dm_*, mz_*, fb_*``) need
+  ``n >= MIN_OBS`` (8) and ``h < n`` (the sample must hold more than one forecast period; the
+  Harvey-Leybourne-Newbold factor is undefined otherwise); they are NaN otherwise. With
+  ``n < 2h`` they rest on fewer than two independent periods: read them with care.
+* **Diebold-Mariano** uses the Harvey, Leybourne & Newbold (1997) small-sample form: the DM
+  statistic times ``sqrt((n + 1 - 2h + h(h-1)/n)/n)``, two-sided p-value from Student's t with
+  ``n - 1`` degrees of freedom. Negative ``dm_stat``: the forwards had the smaller squared error.
+  With forwards identical to the spot (start 0) the loss differential is zero and DM is NaN.
+* **Mincer-Zarnowitz** ``realized = a + b * forward`` (decimals; ``mz_alpha`` is a decimal rate),
+  ``mz_pvalue`` is the chi-square(2) Wald test of ``a = 0, b = 1`` with the HAC covariance.
+  **Fama-Bliss** ``realized - spot = a + b * (forward - spot)``; ``fb_beta_se`` is HAC, ``fb_r2`` the
+  centred R^2. Both NaN when the regressor does not vary (below 1e-12, i.e. rounding noise).
+* **Hit rate** is the share of outcomes with ``sign(forward - spot) == sign(realized - spot)`` among
+  those where the forward predicted a move (``|forward - spot| > 1e-12``); a realised change within
+  1e-12 of zero counts as a miss. NaN when no outcome predicted a move.
+* **Regimes.** ``inverted`` is the curve's state at the as-of date; ``normal`` is its complement
+  (missing values count in ``all`` only). A missing ``inverted`` column means never inverted.
+* **Date window.** ``first`` / ``last`` select outcomes by ``as_of`` (forecasts made in the window).
+"""
+
+from __future__ import annotations
+
+from collections.abc import Mapping
+from typing import Any
+
+import numpy as np
+import pandas as pd
+from scipy import stats
+
+from pipeline.audit_stats import diebold_mariano, hac_mean, hac_ols, rolling_mean_hac_se, wald_pvalue
+from pipeline.dates import as_days
+
+__all__ = [
+    "MIN_OBS",
+    "SUMMARY_COLUMNS",
+    "TERM_PREMIUM_COLUMNS",
+    "overlap_horizon",
+    "summarize",
+    "term_premium",
+    "verdict",
+]
+
+MIN_OBS = 8
+TIE = 1e-12  # decimals: a forward-spot or realised-spot difference below this is rounding noise
+Z95 = float(stats.norm.ppf(0.975))
+
+SUMMARY_COLUMNS = (
+    "curve", "start_months", "tenor_months", "regime", "n", "first_as_of", "last_as_of",
+    "mean_error_bp", "median_error_bp", "std_error_bp", "rmse_bp", "mae_bp", "hac_t", "hac_se_bp",
+    "lags", "rw_rmse_bp", "rmse_ratio", "dm_stat", "dm_pvalue", "mz_alpha", "mz_beta", "mz_pvalue",
+    "fb_beta", "fb_beta_se", "fb_r2", "hit_rate",
+)
+TERM_PREMIUM_COLUMNS = (
+    "curve", "as_of", "start_months", "tenor_months", "window_days", "premium_bp", "lower_bp", "upper_bp",
+)
+_OUTCOME_COLUMNS = (
+    "curve", "as_of", "start_months", "tenor_months", "target_date", "forward_rate", "realized_rate",
+    "spot_rate", "error_bp", "rw_error_bp",
+)
+_VALUE_COLUMNS = ("forward_rate", "realized_rate", "spot_rate", "error_bp", "rw_error_bp")
+_NAN = float("nan")
+
+
+def overlap_horizon(as_of: np.ndarray, target_date: np.ndarray) -> int:
+    """Median number of observations from an as-of date to its target date, at least 1.
+
+    For each outcome, the count of the series' as-of dates in ``(as_of, target_date]``: how many
+    later forecasts of the series were made before this one was settled. Targets beyond the last
+    as-of date of the series are counted on at the series' average spacing, so a sample that
+    ends before its forecasts settle (the last ``h`` outcomes of any record) is not taken for
+    a shorter horizon. ``as_of`` and ``target_date`` are equal-length date arrays.
+    """
+    a, t = as_days(np.asarray(as_of)), as_days(np.asarray(target_date))
+    dates = np.unique(a)
+    if dates.size == 0:
+        return 1
+    count = (np.searchsorted(dates, t, side="right") - np.searchsorted(dates, a, side="right")).astype(float)
+    if dates.size > 1:
+        spacing = (dates[-1] - dates[0]).astype(np.int64) / (dates.size - 1)
+        beyond = np.maximum((t - dates[-1]).astype(np.int64), 0)
+        count += beyond / spacing
+    return max(int(np.floor(np.median(count) + 0.5)), 1)
+
+
+def _sign(x: np.ndarray) -> np.ndarray:
+    return np.where(x > TIE, 1, np.where(x < -TIE, -1, 0))
+
+
+def _stats(as_of, target, fwd, real, spot, err, rw) -> dict[str, Any]:
+    """Statistics of one (curve, start, tenor, regime) cell; arrays ordered by as-of date."""
+    n = err.size
+    h = overlap_horizon(as_of, target)
+    lags = max(h - 1, 0)
+    rmse = float(np.sqrt(np.mean(err * err)))
+    rw_rmse = float(np.sqrt(np.mean(rw * rw)))
+    predicted = _sign(fwd - spot)
+    moved = predicted != 0
+    out: dict[str, Any] = {
+        "n": n,
+        "first_as_of": as_of[0],
+        "last_as_of": as_of[-1],
+        "mean_error_bp": float(err.mean()),
+        "median_error_bp": float(np.median(err)),
+        "std_error_bp": float(err.std(ddof=1)) if n >= 2 else _NAN,
+        "rmse_bp": rmse,
+        "mae_bp": float(np.mean(np.abs(err))),
+        "hac_t": _NAN,
+        "hac_se_bp": _NAN,
+        "lags": lags,
+        "rw_rmse_bp": rw_rmse,
+        "rmse_ratio": rmse / rw_rmse if rw_rmse > 0 else _NAN,
+        "dm_stat": _NAN,
+        "dm_pvalue": _NAN,
+        "mz_alpha": _NAN,
+        "mz_beta": _NAN,
+        "mz_pvalue": _NAN,
+        "fb_beta": _NAN,
+        "fb_beta_se": _NAN,
+        "fb_r2": _NAN,
+        "hit_rate": float(np.mean(predicted[moved] == _sign(real - spot)[moved])) if moved.any() else _NAN,
+    }
+    if n < MIN_OBS or h >= n or np.ptp(err) <= TIE * 1e4:
+        # too few outcomes, or errors without variation (start 0: the forward is the spot itself)
+        return out
+    mean, se = hac_mean(err, lags)
+    out["hac_se_bp"] = se
+    out["hac_t"] = mean / se if se > 0 else _NAN
+    if np.abs(fwd - spot).max() > TIE:  # identical forecasts leave nothing to test
+        out["dm_stat"], out["dm_pvalue"] = diebold_mariano(err, rw, h, lags)
+    ones = np.ones(n)
+    if np.ptp(fwd) > TIE:
+        params, cov, _ = hac_ols(real, np.column_stack([ones, fwd]), lags)
+        out["mz_alpha"], out["mz_beta"] = float(params[0]), float(params[1])
+        out["mz_pvalue"] = wald_pvalue(params, cov, np.array([0.0, 1.0]))[1]
+    spread = fwd - spot
+    if np.ptp(spread) > TIE:
+        params, cov, r2 = hac_ols(real - spot, np.column_stack([ones, spread]), lags)
+        out["fb_beta"], out["fb_beta_se"], out["fb_r2"] = float(params[1]), float(np.sqrt(cov[1, 1])), r2
+    return out
+
+
+def _ordered_groups(frame: pd.DataFrame) -> tuple[dict[str, np.ndarray], np.ndarray, np.ndarray]:
+    """Columns as arrays sorted by (curve, start, tenor, as_of), and each group's [start, stop)."""
+    curve_codes, curve_names = pd.factorize(frame["curve"], sort=True)
+    start = frame["start_months"].to_numpy(dtype=np.int64)
+    tenor = frame["tenor_months"].to_numpy(dtype=np.int64)
+    as_of = as_days(frame["as_of"].to_numpy())
+    order = np.lexsort((as_of, tenor, start, curve_codes))
+    cols = {
+        "curve_code": curve_codes[order],
+        "start_months": start[order],
+        "tenor_months": tenor[order],
+        "as_of": as_of[order],
+    }
+    cols["curve"] = np.asarray(curve_names, dtype=object)[cols["curve_code"]]
+    n = order.size
+    if n == 0:
+        return cols, np.empty(0, dtype=np.int64), np.empty(0, dtype=np.int64)
+    change = np.flatnonzero(
+        (np.diff(cols["curve_code"]) != 0) | (np.diff(cols["start_months"]) != 0)
+        | (np.diff(cols["tenor_months"]) != 0)
+    ) + 1
+    bounds_lo = np.concatenate([[0], change])
+    bounds_hi = np.concatenate([change, [n]])
+    cols["_order"] = order
+    return cols, bounds_lo, bounds_hi
+
+
+def summarize(outcomes: pd.DataFrame, *, first: object = None, last: object = None) -> pd.DataFrame:
+    """Forecast-error statistics per (curve, start_months, tenor_months, regime).
+
+    ``outcomes`` has columns ``curve, as_of, start_months, tenor_months, target_date,
+    forward_rate, realized_rate, spot_rate, error_bp, rw_error_bp`` and optionally ``inverted``
+    (bool), one row per forward (as-of date) of each horizon. ``first`` / ``last`` (inclusive,
+    optional) restrict the as-of dates. Returns the columns :data:`SUMMARY_COLUMNS`, regimes in the
+    order all, inverted, normal; see the module notes for definitions and the small-sample rules.
+    Errors and standard errors in bp; ``mz_alpha`` in decimals; ``lags`` the Newey-West lag.
+    """
+    missing = [c for c in _OUTCOME_COLUMNS if c not in outcomes.columns]
+    if missing:
+        raise ValueError(f"outcomes is missing column(s) {', '.join(missing)}")
+    frame = outcomes
+    if first is not None or last is not None:
+        days = as_days(outcomes["as_of"].to_numpy())
+        keep = np.ones(days.size, dtype=bool)
+        if first is not None:
+            keep &= days >= as_days(first)
+        if last is not None:
+            keep &= days <= as_days(last)
+        frame = outcomes.loc[keep]
+    cols, lo, hi = _ordered_groups(frame)
+    if lo.size == 0:
+        return pd.DataFrame({c: [] for c in SUMMARY_COLUMNS})
+    order = cols["_order"]
+    target = as_days(frame["target_date"].to_numpy())[order]
+    values = {c: frame[c].to_numpy(dtype=float)[order] for c in _VALUE_COLUMNS}
+    if "inverted" in frame.columns:
+        inv = frame["inverted"].astype("boolean")  # nullable: a missing state is in neither regime
+        is_inv = inv.fillna(False).to_numpy(dtype=bool)[order]
+        is_norm = (~inv).fillna(False).to_numpy(dtype=bool)[order]
+    else:
+        is_inv = np.zeros(order.size, dtype=bool)
+        is_norm = np.ones(order.size, dtype=bool)
+
+    rows = []
+    for g0, g1 in zip(lo, hi, strict=True):
+        span = np.arange(g0, g1)
+        for regime, idx in (("all", span), ("inverted", span[is_inv[g0:g1]]),
+                            ("normal", span[is_norm[g0:g1]])):
+            if idx.size == 0:
+                continue
+            row = {
+                "curve": cols["curve"][g0],
+                "start_months": int(cols["start_months"][g0]),
+                "tenor_months": int(cols["tenor_months"][g0]),
+                "regime": regime,
+            }
+            row.update(_stats(cols["as_of"][idx], target[idx], *(values[c][idx] for c in _VALUE_COLUMNS)))
+            rows.append(row)
+    out = pd.DataFrame(rows, columns=list(SUMMARY_COLUMNS))
+    out["n"] = out["n"].astype(np.int64)
+    out["lags"] = out["lags"].astype(np.int64)
+    return out
+
+
+def term_premium(outcomes: pd.DataFrame, window_days: int) -> pd.DataFrame:
+    """Trailing-window ex-post term premium with a HAC 95 % band, per (curve, start, tenor).
+
+    For each as-of date with at least ``window_days`` outcomes of its horizon up to and including
+    it, ``premium_bp`` is the mean ``error_bp`` of the last ``window_days`` outcomes (by as-of
+    date) and ``lower_bp`` / ``upper_bp`` are ``premium_bp -/+ 1.96 * se``, where ``se`` is the
+    Newey-West (Bartlett) standard error of that window's mean with ``max(h-1, 0)`` lags, ``h`` the
+    :func:`overlap_horizon` of the horizon's whole record, capped at ``window_days - 1``.
+    ``window_days`` counts outcomes (observation days), not calendar days. Computed from cumulative
+    sums (no loop over dates). Columns :data:`TERM_PREMIUM_COLUMNS`.
+    """
+    w = int(window_days)
+    if w < 1:
+        raise ValueError(f"window_days must be >= 1, got {window_days}")
+    missing = [c for c in ("curve", "as_of", "start_months", "tenor_months", "target_date", "error_bp")
+               if c not in outcomes.columns]
+    if missing:
+        raise ValueError(f"outcomes is missing column(s) {', '.join(missing)}")
+    cols, lo, hi = _ordered_groups(outcomes)
+    if lo.size == 0:
+        return pd.DataFrame({c: [] for c in TERM_PREMIUM_COLUMNS})
+    order = cols["_order"]
+    target = as_days(outcomes["target_date"].to_numpy())[order]
+    err = outcomes["error_bp"].to_numpy(dtype=float)[order]
+    pieces: dict[str, list[np.ndarray]] = {c: [] for c in ("idx", "mean", "se")}
+    for g0, g1 in zip(lo, hi, strict=True):
+        if g1 - g0 < w:
+            continue
+        lags = min(max(overlap_horizon(cols["as_of"][g0:g1], target[g0:g1]) - 1, 0), w - 1)
+        mean, se = rolling_mean_hac_se(err[g0:g1], w, lags)
+        pieces["idx"].append(np.arange(g0 + w - 1, g1))
+        pieces["mean"].append(mean)
+        pieces["se"].append(se)
+    if not pieces["idx"]:
+        return pd.DataFrame({c: [] for c in TERM_PREMIUM_COLUMNS})
+    idx = np.concatenate(pieces["idx"])
+    mean = np.concatenate(pieces["mean"])
+    se = np.concatenate(pieces["se"])
+    return pd.DataFrame({
+        "curve": cols["curve"][idx],
+        "as_of": cols["as_of"][idx],
+        "start_months": cols["start_months"][idx],
+        "tenor_months": cols["tenor_months"][idx],
+        "window_days": np.full(idx.size, w, dtype=np.int64),
+        "premium_bp": mean,
+        "lower_bp": mean - Z95 * se,
+        "upper_bp": mean + Z95 * se,
+    })
+
+
+def _label(months: int) -> str:
+    months = int(months)
+    if months > 0 and months % 12 == 0:
+        return f"{months // 12}Y"
+    return f"{months}M"
+
+
+def _finite(x: object) -> bool:
+    try:
+        return bool(np.isfinite(float(x)))  # type: ignore[arg-type]
+    except (TypeError, ValueError):
+        return False
+
+
+def verdict(row: Mapping[str, Any] | pd.Series) -> str:
+    """One plain-language line for a row of :func:`summarize`: a statistical finding, not advice.
+
+    Example: ``"forwards over-predicted the realised 1Y rate 2Y ahead by 85.0 bp on average
+    (HAC t = 3.1, n = 4,800); no better than no-change (DM p = 0.31, RMSE ratio 0.98)"``.
+    Significance is judged at 5 % (|t| >= 1.96, p < 0.05).
+    """
+    start, tenor = int(row["start_months"]), int(row["tenor_months"])
+    what = f"the realised {_label(tenor)} rate " + (f"{_label(start)} ahead" if start else "at the as-of date")
+    mean = float(row["mean_error_bp"])
+    n = int(row["n"])
+    direction = "over-predicted" if mean > 0 else "under-predicted" if mean < 0 else "matched"
+    bias = f"forwards {direction} {what}" + (f" by {abs(mean):.1f} bp on average" if mean else " on average")
+    t, std = row["hac_t"], row["std_error_bp"]
+    if _finite(t):
+        bias += f" (HAC t = {float(t):.1f}, n = {n:,}"
+        bias += ")" if abs(float(t)) >= 1.96 else "; not significant at 5 %)"
+    elif _finite(std) and float(std) <= TIE * 1e4:
+        bias += f" (n = {n:,}, every error the same)"
+    else:
+        bias += f" (n = {n:,}, too few outcomes for a HAC test)"
+    regime = str(row.get("regime", "all"))
+    if regime != "all":
+        bias = f"{regime} curves: {bias}"
+    p, dm, ratio = row["dm_pvalue"], row["dm_stat"], row["rmse_ratio"]
+    rtxt = f", RMSE ratio {float(ratio):.2f}" if _finite(ratio) else ""
+    if _finite(p) and _finite(dm):
+        if float(p) < 0.05 and float(dm) < 0:
+            comp = f"more accurate than no-change (DM p = {float(p):.2g}{rtxt})"
+        elif float(p) < 0.05:
+            comp = f"less accurate than no-change (DM p = {float(p):.2g}{rtxt})"
+        else:
+            comp = f"no better than no-change (DM p = {float(p):.2f}{rtxt})"
+    elif start == 0:
+        comp = "the forward is the no-change forecast at this horizon"
+    else:
+        comp = f"too few outcomes to compare with no-change{rtxt}"
+    return f"{bias}; {comp}"
