@@ -31,6 +31,7 @@ import pandas as pd
 
 from pipeline.config import DEFAULT_SEVERITY, CurveConfig
 from pipeline.dates import as_days
+from pipeline.expectations import to_dates
 from pipeline.tenors import parse_tenor
 
 __all__ = [
@@ -119,6 +120,7 @@ def _sorted_panel(as_of: Any, tenors: Sequence[str], rates: Any) -> tuple[np.nda
     r = np.asarray(rates, dtype=float).reshape(len(days), len(labels))
     order_t = sorted(range(len(labels)), key=lambda j: parse_tenor(labels[j]))
     order_d = np.argsort(days, kind="stable")
+    order_d = order_d[~np.isnat(days[order_d])]  # a row without a date cannot be judged
     return days[order_d], [labels[j] for j in order_t], r[np.ix_(order_d, order_t)]
 
 
@@ -177,6 +179,7 @@ def missing_days(as_of: Any, cfg: CurveConfig, *, previous: Any = None) -> pd.Da
     if isinstance(previous, tuple):
         previous = previous[0]
     prev = np.unique(as_days(previous).reshape(-1)) if previous is not None else np.array([], dtype=DAY)
+    days, prev = days[~np.isnat(days)], prev[~np.isnat(prev)]
     if len(days) == 0:
         return empty_findings()
     prev = prev[prev < days[0]]
@@ -295,18 +298,45 @@ def _moves(c: np.ndarray) -> tuple[np.ndarray, np.ndarray]:
     return np.where(valid & (prev >= 0), c - before, np.nan), prev
 
 
-def _relative_moves(delta: np.ndarray) -> np.ndarray:
-    """A tenor's move against its neighbours: the smaller of its excess moves over the left and the
-    right neighbour when both have the same sign (0 when they disagree: the tenor moved with one of
-    them); against the one neighbour at the ends of the curve or where the other is not quoted."""
-    n, t = delta.shape
-    pad = np.full((n, 1), np.nan)
-    left = delta - np.hstack([pad, delta[:, :-1]])
-    right = delta - np.hstack([delta[:, 1:], pad])
-    both = ~np.isnan(left) & ~np.isnan(right)
-    agree = np.sign(left) == np.sign(right)
-    smaller = np.where(np.abs(left) <= np.abs(right), left, right)
-    rel = np.where(both, np.where(agree, smaller, 0.0), np.where(np.isnan(left), right, left))
+def _neighbour_sides(j: int, t: int) -> tuple[list[int], list[int]]:
+    """Neighbouring columns of tenor ``j`` on its two sides, nearest first. At the ends of the curve
+    both "sides" lie on the one side there is (the nearest and the next), so an end tenor must also
+    disagree with two other tenors before it counts as an outlier."""
+    left = list(range(j - 1, max(j - 3, -1), -1))
+    right = list(range(j + 1, min(j + 3, t)))
+    if not left:
+        return right[:1], right[1:2]
+    if not right:
+        return left[:1], left[1:2]
+    return left, right
+
+
+def _relative_moves(c: np.ndarray, delta: np.ndarray, prev_row: np.ndarray) -> np.ndarray:
+    """A tenor's move against its neighbours, over the same interval (since the tenor's previous
+    quote, so a tenor quoted after a gap is compared with its neighbours' moves over that gap too).
+
+    The excess moves over one neighbour on each side (the nearest quoted one, at most two tenors
+    away) are combined: when both have the same sign, the smaller of the two; when they disagree
+    the tenor moved with one of its neighbours and the result is 0; with one side only, that side.
+    """
+    n, t = c.shape
+    rel = np.full((n, t), np.nan)
+    rows = np.arange(n)
+    for j in range(t):
+        p = np.maximum(prev_row[:, j], 0)
+        has = ~np.isnan(delta[:, j])
+        excess = []
+        for side in _neighbour_sides(j, t):
+            m = np.full(n, np.nan)
+            for k in reversed(side):  # the nearest quoted neighbour wins: write it last
+                mk = c[rows, k] - c[p, k]
+                m = np.where(np.isnan(mk), m, mk)
+            excess.append(np.where(has, delta[:, j] - m, np.nan))
+        a, b = excess  # a missing second side is all NaN and falls through to the first
+        both = ~np.isnan(a) & ~np.isnan(b)
+        smaller = np.where(np.abs(a) <= np.abs(b), a, b)
+        rel[:, j] = np.where(both, np.where(np.sign(a) == np.sign(b), smaller, 0.0),
+                             np.where(np.isnan(a), b, a))
     return rel
 
 
@@ -319,9 +349,9 @@ def jumps(
 
     * its size exceeds ``cfg.jump_bp`` basis points, or
     * it is an outlier against the neighbouring tenors: the tenor's move relative to its neighbours
-      (see :func:`_relative_moves`) lies more than ``cfg.outlier_mads`` median absolute deviations
-      from that relative move's median over the history given (raw MAD, floored at 1 bp; skipped with
-      fewer than 20 moves). A units error (4.5 for 0.45, 0.045 for 4.5) is caught by both.
+      over the same interval (see :func:`_relative_moves`) lies more than ``cfg.outlier_mads``
+      median absolute deviations from that relative move's median over the history given (raw MAD,
+      floored at 1 bp; skipped with fewer than 20 moves). A units error (4.5 for 0.45, 0.045 for 4.5) is caught by both.
 
     The move back from an outlier (the next quote of the same tenor, flagged itself, in the opposite
     direction, and going back at least half-way to the level before the outlier) is reported at
@@ -336,7 +366,7 @@ def jumps(
     c = _comparable(labels, r, cfg)
     delta, prev_row = _moves(c)
     big = np.abs(delta) * BP > cfg.jump_bp
-    rel = _relative_moves(delta) if t >= 2 else np.full_like(delta, np.nan)
+    rel = _relative_moves(c, delta, prev_row) if t >= 2 else np.full_like(delta, np.nan)
     finite = ~np.isnan(rel)
     enough = finite.sum(axis=0) >= MIN_MOVES_FOR_MAD
     with np.errstate(invalid="ignore"):
@@ -536,7 +566,7 @@ def duplicate_findings(rows: pd.DataFrame, cfg: CurveConfig | None = None) -> pd
     if len(rows) == 0 or not need <= set(rows.columns):
         return empty_findings()
     sub = pd.DataFrame({
-        "as_of": pd.to_datetime(rows["as_of"], errors="coerce").to_numpy(),
+        "as_of": to_dates(rows["as_of"]).to_numpy(),
         "tenor": rows["tenor"].astype(object).to_numpy(),
         "rate": pd.to_numeric(rows["rate"], errors="coerce").to_numpy(dtype=float),
         "line": rows["line"].to_numpy() if "line" in rows else np.arange(1, len(rows) + 1),

@@ -31,7 +31,7 @@ import pandas as pd
 
 from pipeline.config import CurveConfig
 
-__all__ = ["RATE_BANDS", "RowValidation", "rate_band", "suite_name", "validate_rows"]
+__all__ = ["RATE_BANDS", "RowValidation", "rate_band", "suite_name", "to_dates", "validate_rows"]
 
 ROW_COLUMNS = ("line", "as_of", "tenor", "rate", "raw")
 
@@ -141,13 +141,21 @@ def _frame_for_gx(rows: pd.DataFrame) -> pd.DataFrame:
     n = len(rows)
     out = {}
     as_of = rows["as_of"] if "as_of" in rows else pd.Series([pd.NaT] * n)
-    out["as_of"] = pd.to_datetime(pd.Series(as_of).reset_index(drop=True), errors="coerce")
+    out["as_of"] = to_dates(pd.Series(as_of).reset_index(drop=True))
     tenor = rows["tenor"] if "tenor" in rows else pd.Series([None] * n, dtype=object)
     tenor = pd.Series(tenor).reset_index(drop=True).astype(object)
     out["tenor"] = tenor.where(tenor.notna(), None)
     rate = rows["rate"] if "rate" in rows else pd.Series(np.full(n, np.nan))
     out["rate"] = pd.to_numeric(pd.Series(rate).reset_index(drop=True), errors="coerce").astype(float)
     return pd.DataFrame(out)
+
+
+def to_dates(values: pd.Series) -> pd.Series:
+    """``values`` as a datetime64 Series; anything that is not an ISO date becomes ``NaT``."""
+    if values.dtype.kind == "M":
+        return values
+    # an explicit format: inference would warn and guess per element
+    return pd.to_datetime(values, errors="coerce", format="ISO8601")
 
 
 def _fmt_rate(values: np.ndarray) -> np.ndarray:

@@ -68,6 +68,15 @@ def test_empty_panel_gives_empty_findings_with_columns():
     assert list(ep.columns) == list(checks.EPISODE_COLUMNS) and len(ep) == 0
 
 
+def test_a_row_without_a_date_is_ignored_not_a_crash():
+    days, r = random_walk_history(30)
+    days = days.copy()
+    days[5] = np.datetime64("NaT")
+    out = checks.curve_checks(days, LABELS, r, make_cfg())
+    assert not out["as_of"].isna().any()
+    assert (out["check_name"] == "missing_day").sum() == 1  # the day the NaT replaced
+
+
 def test_inputs_are_not_mutated_and_findings_have_contract_values():
     days, r = random_walk_history(300)
     r[50, 3] *= 10
@@ -219,8 +228,12 @@ def test_stale_single_tenor_needs_a_moving_neighbour():
 
 # --- jumps and units errors -----------------------------------------------------------------------
 
-def test_no_false_jumps_on_a_clean_history():
+@pytest.mark.parametrize("gaps", [0.0, 0.02], ids=["complete", "quotes-missing"])
+def test_no_false_jumps_on_a_clean_history(gaps):
     days, r = random_walk_history(2500, seed=11)
+    # a tenor quoted again after a gap has moved over two days: its neighbours must be judged over
+    # the same two days, or every gap looks like an outlier
+    r = np.where(np.random.default_rng(1).random(r.shape) < gaps, np.nan, r)
     out = checks.jumps(days, LABELS, r, make_cfg())
     # with 4-bp daily shocks a 75-bp move or an 8-MAD relative move is not expected in clean data;
     # allow a handful from the fat tails
@@ -231,6 +244,7 @@ UNITS_CASES = [
     # (id, tenor, factor, jump_bp): factor applied to one quote on one day
     ("x10-5Y", "5Y", 10.0, 75.0),
     ("x10-30Y-end", "30Y", 10.0, 75.0),
+    ("x10-20Y-next-to-end", "20Y", 10.0, 1e9),
     ("div100-1M-end", "1M", 0.01, 75.0),
     ("div100-10Y", "10Y", 0.01, 75.0),
     ("x10-5Y-outlier-only", "5Y", 10.0, 1e9),

@@ -144,8 +144,8 @@ def test_suites_are_cached_per_curve_configuration():
     assert not validate_rows(rows, a).ok[0]  # the cached suite for a is unchanged
 
 
-@pytest.mark.parametrize("case", ["empty", "missing-column", "pandas-str-tenor"],
-                         ids=["empty", "missing-column", "pandas-str-tenor"])
+@pytest.mark.parametrize("case", ["empty", "missing-column", "pandas-str-tenor", "text-dates"],
+                         ids=["empty", "missing-column", "pandas-str-tenor", "text-dates"])
 def test_awkward_frames_do_not_raise(case):
     cfg = make_cfg()
     if case == "empty":
@@ -157,6 +157,12 @@ def test_awkward_frames_do_not_raise(case):
         out = validate_rows(rows, cfg)
         assert not out.ok.any()
         assert out.reasons.str.contains("as_of is missing").all()
+    elif case == "text-dates":
+        rows = pd.DataFrame({"line": [2, 3, 4], "as_of": ["2031-01-02", "2031-02-30", "soon"],
+                             "tenor": ["3M", "1Y", "2Y"], "rate": [0.01, 0.02, 0.03], "raw": ["a", "b", "c"]})
+        out = validate_rows(rows, cfg)
+        assert out.ok.tolist() == [True, False, False]
+        assert out.reasons.iloc[1].startswith("expect_column_values_to_not_be_null: as_of")
     else:
         rows = pd.DataFrame({"line": [2, 3], "as_of": pd.to_datetime(["2031-01-02"] * 2),
                              "tenor": pd.Series(["3M", None], dtype="str"), "rate": [0.01, 0.02],
