@@ -259,7 +259,7 @@ def stale_curves(
     wi = np.nonzero(whole & cur)[0]
     if len(wi):
         detail = ("all " + valid[wi].sum(axis=1).astype(str).astype(object)
-                  + " quoted tenors identical to the curve of " + _iso(days[wi - 1]))
+                  + " quoted tenor(s) identical to the curve of " + _iso(days[wi - 1]))
         out.append(_findings(days[wi], "stale_curve", sev, None, detail))
 
     if t >= 2:
