@@ -1,0 +1,194 @@
+"""``build_curves``: from each day's quotes to a :class:`CurveSet`, all days at once.
+
+Days are grouped by their pattern of usable tenors (a handful of patterns in practice: the full set
+and a few with a missing quote); each group is built as one block of arrays, so the work is
+vectorised over days and the only Python loops run over patterns, tenors and nodes. The one
+exception is the NSS fit, which visits days in date order (see :mod:`pipeline.curves.nss`).
+"""
+
+from __future__ import annotations
+
+from collections.abc import Sequence
+
+import numpy as np
+
+from pipeline.bootstrap import bootstrap_par
+from pipeline.compounding import to_continuous
+from pipeline.config import INTERPOLATIONS, QUOTE_KINDS, CurveConfig, compounding_frequency
+from pipeline.curves.base import Block, CurveSet
+from pipeline.curves.cubic_zero import CubicZeroBlock
+from pipeline.curves.linear_zero import LinearZeroBlock
+from pipeline.curves.log_linear_discount import LogLinearDiscountBlock
+from pipeline.curves.monotone_convex import MonotoneConvexBlock
+from pipeline.curves.nss import NSSBlock, fit_nss
+from pipeline.dates import as_days, maturity_dates, year_fraction
+from pipeline.tenors import Tenor, parse_tenor
+
+__all__ = ["BLOCKS", "build_curves", "node_zero_rates", "nss_curves"]
+
+BLOCKS: dict[str, type[Block]] = {
+    "linear_zero": LinearZeroBlock,
+    "log_linear_discount": LogLinearDiscountBlock,
+    "monotone_convex": MonotoneConvexBlock,
+    "cubic_zero": CubicZeroBlock,
+}
+# NSS is fitted to zero rates; when those come from par quotes they are bootstrapped with this method
+NSS_BOOTSTRAP_METHOD = "monotone_convex"
+MIN_QUOTES = 2
+
+
+def node_zero_rates(quotes: np.ndarray, times: np.ndarray, cfg: CurveConfig) -> np.ndarray:
+    """Continuous zero rates ``(D, T)`` implied by non-par quotes of kind ``cfg.quote``.
+
+    ``zero``: in ``cfg.compounding``; ``discount``: ``D`` as given; ``simple``: ``D = 1 / (1 + r tau)``.
+    NaN where the quote is missing or admits no positive discount factor.
+    """
+    q = np.asarray(quotes, dtype=float)
+    with np.errstate(invalid="ignore", divide="ignore"):
+        if cfg.quote == "zero":
+            return to_continuous(q, cfg.compounding, times)
+        if cfg.quote == "discount":
+            return -np.log(np.where(q > 0.0, q, np.nan)) / times
+        if cfg.quote == "simple":
+            return to_continuous(q, "simple", times)
+    raise ValueError(f"quote kind {cfg.quote!r} has no direct zero rate; allowed: zero, discount, simple")
+
+
+def _block_for(method: str) -> type[Block]:
+    return BLOCKS[NSS_BOOTSTRAP_METHOD if method == "nss" else method]
+
+
+def build_curves(
+    as_of: object,
+    tenors: Sequence[Tenor | str],
+    quotes: np.ndarray,
+    cfg: CurveConfig,
+    method: str | None = None,
+    warm_start: np.ndarray | None = None,
+) -> CurveSet:
+    """Build one curve per as-of day.
+
+    Parameters
+    ----------
+    as_of : ``(D,)`` dates (``datetime64[D]`` or anything :func:`pipeline.dates.as_days` takes).
+    tenors : ``T`` tenors (:class:`~pipeline.tenors.Tenor` or labels), in any order.
+    quotes : ``(D, T)`` decimals, NaN = missing, of kind ``cfg.quote``: ``zero`` rates in
+        ``cfg.compounding``; ``par`` yields with the coupon frequency of ``cfg.compounding`` (see
+        :mod:`pipeline.bootstrap`); ``discount`` factors; ``simple`` money-market rates.
+    cfg : the curve's conventions: ``day_count``, ``calendar``, ``compounding``, ``quote``, and
+        ``interpolation`` unless ``method`` is given.
+    method : one of ``pipeline.config.INTERPOLATIONS``; overrides ``cfg.interpolation``.
+    warm_start : NSS only: a ``(6,)`` parameter vector (the previous built day's) to start from.
+
+    Maturities are ``maturity_dates(as_of, tenor, cfg.calendar)``; node times are
+    ``year_fraction(as_of, maturity, cfg.day_count)``. A day is not ok (``CurveSet.ok`` False, with a
+    reason) when fewer than two quotes are usable, when two tenors mature on the same date, when a par
+    bootstrap does not converge or when an NSS fit fails. Inputs are never modified.
+    """
+    method = method or cfg.interpolation
+    if method not in INTERPOLATIONS:
+        raise ValueError(f"unknown interpolation {method!r}; allowed: {', '.join(INTERPOLATIONS)}")
+    if cfg.quote not in QUOTE_KINDS:
+        raise ValueError(f"unknown quote kind {cfg.quote!r}; allowed: {', '.join(QUOTE_KINDS)}")
+    days = as_days(as_of).reshape(-1)
+    parsed = [parse_tenor(t) for t in tenors]
+    q_in = np.asarray(quotes, dtype=float)
+    if q_in.shape != (days.shape[0], len(parsed)):
+        raise ValueError(f"quotes must be (D, T) = ({days.shape[0]}, {len(parsed)}), got {q_in.shape}")
+    order = sorted(range(len(parsed)), key=lambda j: parsed[j])
+    parsed = [parsed[j] for j in order]
+    q = q_in[:, order]
+    n_days = days.shape[0]
+
+    times = np.column_stack(
+        [year_fraction(days, maturity_dates(days, t, cfg.calendar), cfg.day_count) for t in parsed]
+    ) if parsed else np.empty((n_days, 0))
+
+    with np.errstate(invalid="ignore"):
+        if cfg.quote == "par":
+            m = compounding_frequency(cfg.compounding)
+            if not m:
+                raise ValueError(
+                    f"curve {cfg.name!r}: par quotes need a coupon frequency; compounding = "
+                    f"{cfg.compounding!r} has none (use annual, semiannual, quarterly or monthly)"
+                )
+            direct = None
+            usable = np.isfinite(q) & (times > 0.0) & (1.0 + q / m > 0.0)
+        else:
+            direct = node_zero_rates(q, times, cfg)
+            usable = np.isfinite(direct) & (times > 0.0)
+
+    ok = np.zeros(n_days, dtype=bool)
+    reason: list[str | None] = ["not built"] * n_days
+    blocks: list[tuple[np.ndarray, Block]] = []
+    nss_times = np.full(q.shape, np.nan)
+    nss_zero = np.full(q.shape, np.nan)
+    make = _block_for(method)
+
+    if n_days:
+        patterns, inverse = np.unique(usable, axis=0, return_inverse=True)
+        inverse = inverse.reshape(-1)
+    else:
+        patterns, inverse = np.zeros((0, len(parsed)), dtype=bool), np.zeros(0, dtype=np.int64)
+    for p, pattern in enumerate(patterns):  # a loop over patterns of tenors, not over days
+        rows = np.flatnonzero(inverse == p)
+        cols = np.flatnonzero(pattern)
+        if cols.size < MIN_QUOTES:
+            for r in rows:
+                reason[r] = f"{cols.size} usable quote(s); at least {MIN_QUOTES} are needed"
+            continue
+        t = times[np.ix_(rows, cols)]
+        increasing = np.all(np.diff(t, axis=1) > 0.0, axis=1)
+        for r in rows[~increasing]:
+            reason[r] = "two tenors mature on the same date"
+        rows, t = rows[increasing], t[increasing]
+        if rows.size == 0:
+            continue
+        if direct is None:
+            chosen = [parsed[j] for j in cols]
+            t, z, conv = bootstrap_par(days[rows], chosen, q[np.ix_(rows, cols)], cfg, make)
+            for r in rows[~conv]:
+                reason[r] = "par bootstrap did not converge"
+            rows, t, z = rows[conv], t[conv], z[conv]
+            if rows.size == 0:
+                continue
+        else:
+            z = direct[np.ix_(rows, cols)]
+        if method == "nss":
+            nss_times[np.ix_(rows, cols)] = t
+            nss_zero[np.ix_(rows, cols)] = z
+            continue
+        blocks.append((rows, make(t, z)))
+        ok[rows] = True
+        for r in rows:
+            reason[r] = None
+
+    params = None
+    if method == "nss":
+        params = np.full((n_days, 6), np.nan)
+        ready = np.flatnonzero(np.isfinite(nss_times).any(axis=1))
+        chrono = ready[np.argsort(days[ready], kind="stable")]
+        fitted, good = fit_nss(nss_times[chrono], nss_zero[chrono], warm_start)
+        params[chrono] = fitted
+        for r in chrono[~good]:
+            reason[r] = "NSS fit failed"
+        done = np.sort(chrono[good])
+        if done.size:
+            blocks.append((done, NSSBlock(params[done], nss_times[done], nss_zero[done])))
+        ok[done] = True
+        for r in done:
+            reason[r] = None
+
+    return CurveSet(days, method, ok, reason, blocks, params=params, day_count=cfg.day_count)
+
+
+def nss_curves(as_of: object, params: np.ndarray, day_count: str = "ACT/365F") -> CurveSet:
+    """A :class:`CurveSet` from stored NSS parameters ``(D, 6)`` (decimals, taus in years); days with
+    any NaN parameter are not ok."""
+    days = as_days(as_of).reshape(-1)
+    p = np.asarray(params, dtype=float).reshape(days.shape[0], 6)
+    good = np.all(np.isfinite(p), axis=1)
+    idx = np.flatnonzero(good)
+    blocks = [(idx, NSSBlock(p[idx]))] if idx.size else []
+    reason = [None if g else "no NSS parameters" for g in good]
+    return CurveSet(days, "nss", good, reason, blocks, params=p.copy(), day_count=day_count)
