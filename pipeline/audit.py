@@ -85,7 +85,10 @@ def overlap_horizon(as_of: np.ndarray, target_date: np.ndarray) -> int:
     a shorter horizon. ``as_of`` and ``target_date`` are equal-length date arrays.
     """
     a, t = as_days(np.asarray(as_of)), as_days(np.asarray(target_date))
-    dates = np.unique(a)
+    if a.size and (a[1:] >= a[:-1]).all():  # already sorted (as summarize passes it): skip the sort
+        dates = a[np.concatenate([[True], a[1:] != a[:-1]])]
+    else:
+        dates = np.unique(a)
     if dates.size == 0:
         return 1
     count = (np.searchsorted(dates, t, side="right") - np.searchsorted(dates, a, side="right")).astype(float)

@@ -33,6 +33,20 @@ __all__ = [
 ]
 
 
+def _gram(a: np.ndarray, b: np.ndarray | None = None) -> np.ndarray:
+    """``a.T @ b`` for tall, narrow arrays by elementwise sums.
+
+    Deliberately not BLAS: OpenBLAS spreads these products over threads, which on a small,
+    busy machine (2 cores shared with a store and a scheduler) made them several times slower.
+    """
+    b = a if b is None else b
+    out = np.empty((a.shape[1], b.shape[1]))
+    for i in range(a.shape[1]):  # k <= 3 columns: a loop over regressors, not over rows
+        for j in range(b.shape[1]):
+            out[i, j] = np.add.reduce(a[:, i] * b[:, j])
+    return out
+
+
 def bartlett_long_run(g: np.ndarray, lags: int) -> np.ndarray:
     """Bartlett-weighted sum of autocovariance products ``S = sum_j w_j (G_j + G_j')``.
 
@@ -49,9 +63,13 @@ def bartlett_long_run(g: np.ndarray, lags: int) -> np.ndarray:
         raise ValueError(f"lags must be >= 0, got {lags}")
     cs = np.zeros((n + 1, x.shape[1]))
     np.cumsum(x, axis=0, out=cs[1:])
-    r = np.arange(-L, n)
-    blocks = cs[np.minimum(r + L, n - 1) + 1] - cs[np.maximum(r, 0)]
-    return blocks.T @ blocks / (L + 1)
+    if L < n:
+        # blocks r = -L..-1 (clipped at the start), 0..n-1-L (whole), n-L..n-1 (clipped at the end)
+        blocks = np.concatenate([cs[1 : L + 1], cs[L + 1 :] - cs[: n - L], cs[n] - cs[n - L : n]])
+    else:
+        r = np.arange(-L, n)
+        blocks = cs[np.minimum(r + L, n - 1) + 1] - cs[np.maximum(r, 0)]
+    return _gram(blocks) / (L + 1)
 
 
 def hac_mean(x: np.ndarray, lags: int) -> tuple[float, float]:
@@ -72,13 +90,13 @@ def hac_ols(y: np.ndarray, X: np.ndarray, lags: int) -> tuple[np.ndarray, np.nda
     """
     y = np.asarray(y, dtype=float)
     X = np.asarray(X, dtype=float)
-    xtx_inv = np.linalg.inv(X.T @ X)
-    params = xtx_inv @ (X.T @ y)
-    resid = y - X @ params
+    xtx_inv = np.linalg.inv(_gram(X))
+    params = xtx_inv @ _gram(X, y[:, None])[:, 0]
+    resid = y - (X * params).sum(axis=1)
     meat = bartlett_long_run(X * resid[:, None], lags)
     cov = xtx_inv @ meat @ xtx_inv.T
     tss = float(np.sum((y - y.mean()) ** 2))
-    r2 = 1.0 - float(resid @ resid) / tss if tss > 0 else float("nan")
+    r2 = 1.0 - float(np.add.reduce(resid * resid)) / tss if tss > 0 else float("nan")
     return params, cov, r2
 
 
