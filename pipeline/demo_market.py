@@ -31,9 +31,9 @@ The continuously compounded zero rate (ACT/365F, ``tau`` = calendar days / 365) 
 a deterministic, documented term premium::
 
     z(t, tau) = (1/tau) * integral_0^tau E_t[r(t+u)] du + tp(tau),
-    tp(tau)   = a (1 - exp(-tau / b)),      a = 1.50 %, b = 4 years
+    tp(tau)   = a (1 - exp(-tau / b)),      a = 1.60 %, b = 4 years
 
-so ``tp`` is about 9 bp at 3M, 1.1 % at 5Y and 1.38 % at 10Y. The swap curve is the government zero
+so ``tp`` is about 10 bp at 3M, 1.14 % at 5Y and 1.47 % at 10Y. The swap curve is the government zero
 curve plus a swap spread built the same way from a fourth, independent, slowly mean-reverting factor
 ``Q`` (the expected-average part) plus a small deterministic spread premium
 ``sp(tau) = 0.08 % (1 - exp(-tau / 3))``.
@@ -46,21 +46,24 @@ for ``M`` years carries, on average, exactly::
 
     E[f(t; S, M) - z(t + S, M)] = [(S + M) tp(S + M) - S tp(S)] / M - tp(M)
 
-(continuous compounding). :func:`expected_forward_error_bp` evaluates it.
+(continuous compounding): 18 bp for 3M x 3M, 55 bp for 1Y x 1Y, 65 bp for 5Y x 5Y, zero for a
+forward starting today. :func:`expected_forward_error_bp` evaluates it.
 
 The tightening episode
 ----------------------
-In early 1999 the slope factor receives a burst of positive shocks (about +4 % spread over five
-months): the short end rises fast and the curve inverts (3M and 2Y above 10Y) for the better part of a
-year. A forecaster using the model's own expectation cannot foresee that burst, so forecasts made
-shortly before and during it under-predict the realised rates. To keep the full-sample average error
-equal to the premium above, the burst is paid back by a slow drift of negative shocks of the same
-total size over the 2.5 years that follow it (an easing cycle that is also "faster than expected").
-Because a shock's effect on a later rate depends only on the time between them, a set of shocks
-summing to zero adds nothing to the mean error of a horizon whose as-of dates cover them all; the
-residual comes from the sample's ends and is well under 1 bp. What the episode does add is variance:
-errors are large and serially correlated around 1999-2002, which widens the HAC band of the audit, and
-sub-windows covering only the tightening (or only the easing) show a premium far from the formula.
+From mid-February 2001 the slope factor receives a burst of positive shocks (+4 % spread over 150
+days): the short end rises fast and the curve inverts (3M and 2Y above 10Y) for about a year. A
+forecaster using the model's own expectation cannot foresee that burst, so forecasts made shortly
+before and during it under-predict the realised rates. To keep the full-sample average error equal
+to the premium above, the burst is paid back by a drift of negative shocks of the same total size over
+the 900 days that start four months after it (an easing cycle that is also "faster than expected").
+The model is linear in its shocks and a shock's effect on a later rate depends only on the time
+between them, so a set of shocks summing to zero adds nothing to the mean error of a horizon whose
+as-of dates all lie inside the sample; the burst sits five years in so that this holds for forward
+starts up to 5Y (measured: under 0.1 bp for the demo's forwards). What the episode does add is
+variance: errors are large and serially correlated around 2000-2004, which widens the HAC band of the
+audit, and sub-windows covering only the tightening (or only the easing) show a mean error far from
+the formula.
 
 Approximations to keep in mind when comparing with an audit of the built curves: the formula works in
 year fractions ``months * 30.4375 / 365`` where the audit works on rolled calendar dates (a few days'
@@ -102,6 +105,7 @@ __all__ = [
     "Defect",
     "DemoManifest",
     "DemoMarket",
+    "DemoModel",
     "Episode",
     "ModelParams",
     "demo_calendar",
@@ -121,6 +125,9 @@ CURRENCY = "Orvane orv (ORV)"
 ISSUER = "Orvane National Treasury"
 RATE_PANEL = "Orvane Harbour Rate panel"
 
+# Any seed gives the same model; this one was picked among the first few dozen because its path tells
+# the demo's story cleanly: the 2001 tightening inverts the curve for about a year, other inversions
+# are short, rates stay within 1 %-9.5 %, and the sample's mean errors sit well inside their HAC bands.
 DEFAULT_SEED = 21
 FIRST_DAY = "1996-01-01"
 LAST_DAY = "2025-12-31"
@@ -162,7 +169,7 @@ def demo_calendar() -> BusinessCalendar:
 class Episode:
     """The tightening burst and the easing drift that pays it back (calendar-day ranges, inclusive)."""
 
-    tightening_start: np.datetime64 = np.datetime64("1999-02-15")
+    tightening_start: np.datetime64 = np.datetime64("2001-02-15")
     tightening_days: int = 150
     rise: float = 0.040  # total push on the slope factor, decimal
     easing_gap_days: int = 120  # calm between the end of the burst and the start of the drift
@@ -279,7 +286,10 @@ def expected_forward_error_bp(
         raise ValueError("tenor_months must be > 0 and start_months >= 0")
     s = start_months * _MONTH_DAYS / _YEAR_DAYS
     m = tenor_months * _MONTH_DAYS / _YEAR_DAYS
-    p = lambda tau: float(_premium(np.asarray(tau), curve, params))  # noqa: E731
+
+    def p(tau: float) -> float:
+        return float(_premium(np.asarray(tau), curve, params))
+
     err = ((s + m) * p(s + m) - s * p(s)) / m - p(m)
     basis = 360.0 / 365.0 if curve == "swap" else 1.0
     err *= basis
@@ -294,7 +304,7 @@ def expected_forward_error_bp(
 
 @dataclass(frozen=True)
 class _Factors:
-    """Factor values on each as-of day: arrays ``(N,)`` of decimals."""
+    """Each factor's distance from its mean on each day: arrays ``(N,)`` of decimals."""
 
     level: np.ndarray
     slope: np.ndarray
@@ -313,7 +323,7 @@ def _simulate(days: np.ndarray, rng: np.random.Generator, params: ModelParams) -
 
     The conditional mean of each step is exact (``e^{-K h}``), which is what keeps the model's
     expectation honest; the shock covariance uses the ``Sigma Sigma' h`` approximation, of no
-    consequence for the mean. Factors are deviations from their means until the end.
+    consequence for the mean. Returns the factors' distances from their means.
     """
     h = 1.0 / _YEAR_DAYS
     n = days.size
@@ -357,6 +367,7 @@ class DemoModel:
         return x if ndim == 1 else x.reshape((-1,) + (1,) * (ndim - 1))
 
     def zero_cc(self, tau: np.ndarray, curve: str = "govt") -> np.ndarray:
+        """Continuous zero rates (decimal) for year fractions ``tau`` (ACT/365F) from each as-of day."""
         p, f = self.params, self.factors
         t = np.asarray(tau, dtype=float)
         nd = t.ndim
@@ -372,10 +383,12 @@ class DemoModel:
         return z + _premium(t, curve, p)
 
     def tau(self, dates: np.ndarray) -> np.ndarray:
+        """ACT/365F year fractions from each as-of day to ``dates`` (rows aligned with as-of)."""
         d = as_days(dates)
         return year_fraction(self._col(self.as_of, d.ndim), d, "ACT/365F")
 
     def discount(self, dates: np.ndarray, curve: str = "govt") -> np.ndarray:
+        """Discount factors to ``dates`` from each as-of day on ``curve`` (``govt`` or ``swap``)."""
         t = self.tau(dates)
         return np.exp(-self.zero_cc(t, curve) * t)
 
@@ -397,9 +410,12 @@ def par_yields(
 
     Follows the contract's convention: coupon dates step back from the unadjusted maturity
     ``as_of + tenor`` by ``12/frequency`` months and are rolled (modified following on
-    ``calendar``); regular coupons pay ``c/frequency``, a short first period (when stepping back does
-    not land exactly on the as-of date) pays ``c`` times its ``day_count`` year fraction; a tenor of
-    one coupon period or less is a single payment, ``D = (1 + c/m)^(-m tau)``.
+    ``calendar``); regular coupons pay ``c/frequency``; a short first period pays ``c`` times its
+    ``day_count`` year fraction (as-of date to first coupon date). The first period is short when
+    stepping back from the unadjusted maturity does not land exactly on the as-of date: for a tenor
+    that is not a whole number of periods, and also when the maturity's day was clipped to a month's
+    end (an as-of date of 29 February with a whole-year tenor), as QuantLib's backward schedule
+    flags it. A tenor of one coupon period or less is a single payment, ``D = (1 + c/m)^(-m tau)``.
 
     ``discount(dates)`` takes an array ``(N, K)`` of payment dates aligned with ``as_of`` ``(N,)``
     and returns their discount factors. Returns an array ``(N,)``.
@@ -495,11 +511,20 @@ class Defect:
 
     ``file`` is the file name inside the inbox; ``line`` the 1-based line number in it (the header is
     line 1; ``None`` when the defect is an absence); values are in the file's units (percent for
-    ``govt``). Kinds: ``missing_day``, ``wrong_units`` (a cell 10x its true value), ``duplicate_row``
-    (a line repeated verbatim on the next line), ``garbled_line`` (an extra unreadable line; its text
-    in ``written_value``), ``restated_value`` (a wrong value in the monthly file, corrected by the
-    restatement file), ``restatement`` (the restating line), ``stale_curve`` (the whole curve copied
-    from the previous business day), ``missing_tenor`` (an empty cell).
+    ``govt``). Kinds:
+
+    - ``missing_day``: a business day absent from ``govt`` (still present in ``swap``);
+    - ``wrong_units``: a cell 10x its true value, still inside a -5 %..40 % band (only a jump or
+      outlier check sees it);
+    - ``out_of_range``: a cell 100x its true value;
+    - ``duplicate_row``: a line repeated verbatim on the next line (its text in ``written_value``);
+    - ``conflicting_duplicate``: a day sent again at the end of its file with one tenor changed
+      (``true_value`` is the first copy's, ``written_value`` the second's);
+    - ``garbled_line``: an extra unreadable line (its text in ``written_value``);
+    - ``restated_value``: a wrong first publication of one tenor; ``restatement``: the line of the
+      later restatement file that corrects it (both values are the true one);
+    - ``stale_curve``: the whole curve copied from the previous business day;
+    - ``missing_tenor``: an empty cell.
     """
 
     kind: str
@@ -514,7 +539,7 @@ class Defect:
 
 # target dates of the defects (each rolled to the next business day), well apart from each other
 _DEFECT_DATES = {
-    "wrong_units": "2002-09-02",  # where the search for a suitable cell starts
+    "wrong_units": "2003-03-03",  # where the search for a suitable cell starts
     "garbled_line": "2003-07-15",
     "missing_day": "2004-03-10",
     "duplicate_row": "2007-11-14",

@@ -486,6 +486,34 @@ def test_measured_mean_error_matches_the_known_premium(market: dm.DemoMarket, cu
     assert want > 2.0 * se  # the premium is large enough for the audit to see it
 
 
+EPISODE_FORWARDS = [
+    pytest.param("3M", "3M", "6M", id="3Mx3M"),
+    pytest.param("1Y", "1Y", "2Y", id="1Yx1Y"),
+    pytest.param("3Y", "2Y", "5Y", id="3Yx2Y"),
+    pytest.param("2Y", "5Y", "7Y", id="2Yx5Y"),
+    pytest.param("5Y", "5Y", "10Y", id="5Yx5Y"),
+]
+
+
+@pytest.fixture(scope="module")
+def calm(market: dm.DemoMarket) -> dm.DemoMarket:
+    """The same seed without the tightening episode."""
+    quiet = dataclasses.replace(market.episode, rise=0.0)
+    return dm.generate_market(market.seed, dataclasses.replace(market.params, episode=quiet))
+
+
+@pytest.mark.parametrize(("start", "tenor", "end"), EPISODE_FORWARDS)
+def test_the_tightening_episode_adds_no_bias_to_the_mean_error(market: dm.DemoMarket, calm: dm.DemoMarket,
+                                                              start: str, tenor: str, end: str) -> None:
+    # the model is linear in its shocks: the same seed without the episode differs by the episode's
+    # own response only, so the difference of the two mean errors is the bias the episode adds
+    assert not np.allclose(calm.quotes["govt"], market.quotes["govt"])
+    with_episode, _, err = _mean_error_band(market, "govt", start, tenor, end)
+    without, _, err_calm = _mean_error_band(calm, "govt", start, tenor, end)
+    assert abs(with_episode - without) < 0.25, (with_episode, without)
+    assert np.abs(err - err_calm).max() > 50.0  # ... while single forecasts are far off
+
+
 def test_without_a_premium_forwards_are_unbiased(market: dm.DemoMarket) -> None:
     flat = dataclasses.replace(market.params, tp_a=0.0, sp_a=0.0)
     m = dm.generate_market(market.seed, flat)
