@@ -32,7 +32,17 @@ class Block:
         self.times = np.array(times, dtype=float)
         self.zero_cc = np.array(zero_cc, dtype=float)
 
-    def ln_discount(self, t: np.ndarray) -> np.ndarray:  # pragma: no cover - abstract
+    #: nodes a time depends on, as ``(a, b)``: a time in ``(t_{j-1}, t_j]`` depends on nodes
+    #: ``j-a .. j+b`` only (``None``: on every node). The par bootstrap uses it to get its Jacobian
+    #: from a few evaluations.
+    support: tuple[int, int] | None = None
+
+    def locate(self, t: np.ndarray) -> np.ndarray | None:
+        """Precomputed positions of times ``t`` among the nodes, reusable by :meth:`ln_discount` for
+        any block with the same node times (``None`` when a method has nothing to precompute)."""
+        return None
+
+    def ln_discount(self, t: np.ndarray, loc: np.ndarray | None = None) -> np.ndarray:  # pragma: no cover
         raise NotImplementedError
 
     def inst_forward(self, t: np.ndarray) -> np.ndarray:  # pragma: no cover - abstract

@@ -36,6 +36,8 @@ def natural_spline_second_derivatives(x: np.ndarray, y: np.ndarray) -> np.ndarra
 
 
 class CubicZeroBlock(Block):
+    support = None
+
     def __init__(self, times: np.ndarray, zero_cc: np.ndarray) -> None:
         super().__init__(times, zero_cc)
         x, y = self.times, self.zero_cc
@@ -58,7 +60,7 @@ class CubicZeroBlock(Block):
         first = t < x[:, :1]
         return np.where(first, y[:, :1], r), np.where(first, 0.0, dr)
 
-    def ln_discount(self, t: np.ndarray) -> np.ndarray:
+    def ln_discount(self, t: np.ndarray, loc: np.ndarray | None = None) -> np.ndarray:
         r, _ = self._spline(t)
         x_n, y_n = self.times[:, -1:], self.zero_cc[:, -1:]
         beyond = -(y_n * x_n) - self._f_last[:, None] * (t - x_n)

@@ -16,6 +16,8 @@ __all__ = ["LinearZeroBlock"]
 
 
 class LinearZeroBlock(Block):
+    support = (1, 0)
+
     def __init__(self, times: np.ndarray, zero_cc: np.ndarray) -> None:
         super().__init__(times, zero_cc)
         x, y = self.times, self.zero_cc
@@ -34,7 +36,7 @@ class LinearZeroBlock(Block):
         s = np.where(first, 0.0, s)
         return r, s
 
-    def ln_discount(self, t: np.ndarray) -> np.ndarray:
+    def ln_discount(self, t: np.ndarray, loc: np.ndarray | None = None) -> np.ndarray:
         r, _ = self._zero(t)
         x_n, y_n = self.times[:, -1:], self.zero_cc[:, -1:]
         beyond = -(y_n * x_n) - self._f_last[:, None] * (t - x_n)

@@ -15,6 +15,8 @@ __all__ = ["LogLinearDiscountBlock"]
 
 
 class LogLinearDiscountBlock(Block):
+    support = (1, 0)
+
     def __init__(self, times: np.ndarray, zero_cc: np.ndarray) -> None:
         super().__init__(times, zero_cc)
         g = self.times.shape[0]
@@ -22,7 +24,7 @@ class LogLinearDiscountBlock(Block):
         self._lnd = np.hstack([np.zeros((g, 1)), -self.zero_cc * self.times])
         self._fwd = -np.diff(self._lnd, axis=1) / np.diff(self._x, axis=1)  # (G, n) segment forwards
 
-    def ln_discount(self, t: np.ndarray) -> np.ndarray:
+    def ln_discount(self, t: np.ndarray, loc: np.ndarray | None = None) -> np.ndarray:
         j = segment_index(self._x, t)
         return gather(self._lnd, j - 1) - gather(self._fwd, j - 1) * (t - gather(self._x, j - 1))
 

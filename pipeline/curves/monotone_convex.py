@@ -25,9 +25,9 @@ from __future__ import annotations
 
 import numpy as np
 
-from pipeline.curves.base import Block, gather, segment_index
+from pipeline.curves.base import Block, segment_index
 
-__all__ = ["MonotoneConvexBlock", "knot_forwards", "sector_g"]
+__all__ = ["MonotoneConvexBlock", "knot_forwards", "sector_coefficients", "sector_g"]
 
 
 def knot_forwards(times: np.ndarray, zero_cc: np.ndarray, collar: bool = True) -> tuple[np.ndarray, ...]:
@@ -58,55 +58,94 @@ def _safe(d: np.ndarray) -> np.ndarray:
     return np.where(d == 0.0, 1.0, d)
 
 
-def sector_g(g0: np.ndarray, g1: np.ndarray, x: np.ndarray) -> tuple[np.ndarray, np.ndarray]:
-    """Hagan-West ``g(x)`` and its integral ``G(x) = integral_0^x g`` on ``x in [0, 1]``.
+_N_COEF = 8  # eta, e_left, a_left, b_left, c_left, a_right, c_right, G(eta)
 
-    ``g(0) = g0``, ``g(1) = g1`` and ``G(1) = 0``; the sector is chosen from ``(g0, g1)`` as in the paper.
+
+def sector_coefficients(g0: np.ndarray, g1: np.ndarray) -> np.ndarray:
+    """Hagan-West's ``g`` on one interval as two quadratic pieces, for arrays of ``(g0, g1)``.
+
+    Returns ``(..., 8)``: ``eta`` (where the pieces meet), the left piece
+    ``a_l + b_l (x - e_l) + c_l (x - e_l)^2`` on ``[0, eta]``, the right piece
+    ``a_r + c_r (x - eta)^2`` on ``(eta, 1]`` and ``G(eta) = integral_0^eta g``. The pieces are
+    written about their own vertex so that nearly degenerate sectors (``eta`` close to 0 or 1) keep
+    their digits. Sectors as in the paper: (i) a single quadratic; (ii) flat at ``g0`` then up/down
+    to ``g1``; (iii) from ``g0`` to ``g1`` then flat; (iv) two quadratics meeting at their extremum.
     """
-    x = np.clip(x, 0.0, 1.0)
+    g0, g1 = np.broadcast_arrays(np.asarray(g0, dtype=float), np.asarray(g1, dtype=float))
     neg, pos = g0 < 0.0, g0 > 0.0
     z1 = (neg & (-0.5 * g0 <= g1) & (g1 <= -2.0 * g0)) | (pos & (-0.5 * g0 >= g1) & (g1 >= -2.0 * g0))
     z2 = ~z1 & ((neg & (g1 > -2.0 * g0)) | (pos & (g1 < -2.0 * g0)))
     z3 = ~z1 & ~z2 & ((pos & (g1 < 0.0) & (g1 > -0.5 * g0)) | (neg & (g1 > 0.0) & (g1 < -0.5 * g0)))
     z0 = (g0 == 0.0) & (g1 == 0.0)
-
+    z4 = ~(z1 | z2 | z3 | z0)
     with np.errstate(invalid="ignore", divide="ignore"):
-        # sector (i): a quadratic
-        g_1 = g0 * (1.0 - 4.0 * x + 3.0 * x * x) + g1 * (-2.0 * x + 3.0 * x * x)
-        G_1 = g0 * (x - 2.0 * x * x + x**3) + g1 * (-x * x + x**3)
-        # sector (ii): flat at g0, then a quadratic up to g1
-        eta2 = np.clip((g1 + 2.0 * g0) / _safe(g1 - g0), 0.0, 1.0)
-        w2 = np.clip((x - eta2) / _safe(1.0 - eta2), 0.0, None)
-        g_2 = g0 + (g1 - g0) * w2 * w2
-        G_2 = g0 * x + (g1 - g0) * (1.0 - eta2) * w2**3 / 3.0
-        # sector (iii): a quadratic from g0 down to g1, then flat at g1
-        eta3 = np.clip(3.0 * g1 / _safe(g1 - g0), 0.0, 1.0)
-        w3 = np.clip((eta3 - x) / _safe(eta3), 0.0, None)
-        g_3 = g1 + (g0 - g1) * w3 * w3
-        G_3 = g1 * x + (g0 - g1) * eta3 / 3.0 * (1.0 - w3**3)
-        # sector (iv): two quadratics meeting at their common extremum A
-        eta4 = np.clip(g1 / _safe(g1 + g0), 0.0, 1.0)
+        e2 = np.clip((g1 + 2.0 * g0) / _safe(g1 - g0), 0.0, 1.0)
+        e3 = np.clip(3.0 * g1 / _safe(g1 - g0), 0.0, 1.0)
+        e4 = np.clip(g1 / _safe(g1 + g0), 0.0, 1.0)
         a4 = -g0 * g1 / _safe(g0 + g1)
-        left = x <= eta4
-        wl = np.where(left, (eta4 - x) / _safe(eta4), 0.0)
-        wr = np.where(left, 0.0, (x - eta4) / _safe(1.0 - eta4))
-        g_4 = np.where(left, a4 + (g0 - a4) * wl * wl, a4 + (g1 - a4) * wr * wr)
-        G_4 = a4 * x + (g0 - a4) * eta4 / 3.0 * (1.0 - wl**3) + (g1 - a4) * (1.0 - eta4) * wr**3 / 3.0
+        eta = np.select([z2, z3, z4], [e2, e3, e4], 1.0)
+        left_sq = np.where(eta > 0.0, 1.0 / _safe(eta * eta), 0.0)
+        right_sq = np.where(eta < 1.0, 1.0 / _safe((1.0 - eta) ** 2), 0.0)
+        e_l = np.where(z1 | z0, 0.0, eta)
+        a_l = np.select([z1, z2, z3, z4], [g0, g0, g1, a4], 0.0)
+        b_l = np.where(z1, -4.0 * g0 - 2.0 * g1, 0.0)
+        c_l = np.select([z1, z3, z4], [3.0 * (g0 + g1), (g0 - g1) * left_sq, (g0 - a4) * left_sq], 0.0)
+        a_r = np.select([z2, z3, z4], [g0, g1, a4], 0.0)
+        c_r = np.select([z2, z4], [(g1 - g0) * right_sq, (g1 - a4) * right_sq], 0.0)
+    u = eta - e_l
+    g_eta = a_l * eta + b_l * (u * u - e_l * e_l) / 2.0 + c_l * (u**3 + e_l**3) / 3.0
+    out = np.stack([eta, e_l, a_l, b_l, c_l, a_r, c_r, g_eta], axis=-1)
+    out[z0] = 0.0
+    out[..., 0] = np.where(z0, 1.0, out[..., 0])
+    return out
 
-    g = np.where(z1, g_1, np.where(z2, g_2, np.where(z3, g_3, g_4)))
-    G = np.where(z1, G_1, np.where(z2, G_2, np.where(z3, G_3, G_4)))
-    g = np.where(z0, 0.0, g)
-    G = np.where(z0, 0.0, G)
+
+def _evaluate(coef: np.ndarray, x: np.ndarray, g0: np.ndarray, g1: np.ndarray, want_g: bool = True):
+    """``g(x)`` (None unless ``want_g``) and ``G(x)`` from gathered coefficients (8 arrays, see
+    :func:`sector_coefficients`) at ``x`` in ``[0, 1]``."""
+    eta, e_l, a_l, b_l, c_l, a_r, c_r, g_eta = coef
+    x = np.clip(x, 0.0, 1.0)
+    left = x <= eta
+    v = x - e_l
+    w = np.where(left, 0.0, x - eta)
+    G = np.where(
+        left,
+        a_l * x + b_l * (v * v - e_l * e_l) / 2.0 + c_l * (v**3 + e_l**3) / 3.0,
+        g_eta + a_r * w + c_r * w**3 / 3.0,
+    )
     # the ends exactly: keeps node values and forward continuity free of rounding in the sectors
+    G[(x <= 0.0) | (x >= 1.0)] = 0.0
+    if not want_g:
+        return None, G
+    g = np.where(left, a_l + b_l * v + c_l * v * v, a_r + c_r * w * w)
     g = np.where(x <= 0.0, g0, np.where(x >= 1.0, g1, g))
-    G = np.where((x <= 0.0) | (x >= 1.0), 0.0, G)
     return g, G
 
 
+def sector_g(g0: np.ndarray, g1: np.ndarray, x: np.ndarray) -> tuple[np.ndarray, np.ndarray]:
+    """Hagan-West ``g(x)`` and its integral ``G(x) = integral_0^x g`` on ``x in [0, 1]``.
+
+    ``g(0) = g0``, ``g(1) = g1`` and ``G(1) = 0``; the sector is chosen from ``(g0, g1)`` as in the paper.
+    """
+    g0, g1, x = np.broadcast_arrays(*(np.asarray(a, dtype=float) for a in (g0, g1, x)))
+    return _evaluate(np.moveaxis(sector_coefficients(g0, g1), -1, 0), x, g0, g1)
+
+
 class MonotoneConvexBlock(Block):
+    support = (2, 1)
+
     def __init__(self, times: np.ndarray, zero_cc: np.ndarray, collar: bool = True) -> None:
         super().__init__(times, zero_cc)
         self._x, self._lnd, self._fd, self._f = knot_forwards(self.times, self.zero_cc, collar)
+        g0 = self._f[:, :-1] - self._fd
+        g1 = self._f[:, 1:] - self._fd
+        h = np.diff(self._x, axis=1)
+        # one row of everything a point needs per interval, gathered in one fancy-index
+        self._table = np.concatenate(
+            [sector_coefficients(g0, g1), np.stack([self._x[:, :-1], h, self._fd, self._lnd[:, :-1], g0, g1],
+                                                   axis=-1)], axis=-1
+        ).reshape(-1, _N_COEF + 6).T.copy()  # (coefficients, G * intervals): contiguous gathers
+        self._nseg = h.shape[1]
 
     @property
     def knot_forwards(self) -> np.ndarray:
@@ -118,24 +157,24 @@ class MonotoneConvexBlock(Block):
         """``(G, n)`` discrete forwards ``fd_i`` between consecutive nodes (from ``t = 0``)."""
         return self._fd.copy()
 
-    def _local(self, t: np.ndarray):
-        j = segment_index(self._x, t)
-        x0, x1 = gather(self._x, j - 1), gather(self._x, j)
-        fd = gather(self._fd, j - 1)
-        g0 = gather(self._f, j - 1) - fd
-        g1 = gather(self._f, j) - fd
-        h = x1 - x0
-        g, G = sector_g(g0, g1, (t - x0) / h)
-        return j, x0, h, fd, g, G
+    def locate(self, t: np.ndarray) -> np.ndarray:
+        rows = np.arange(t.shape[0])[:, None] * self._nseg
+        return rows + segment_index(self._x, t) - 1
 
-    def ln_discount(self, t: np.ndarray) -> np.ndarray:
-        j, x0, h, fd, _, G = self._local(t)
-        inside = gather(self._lnd, j - 1) - fd * (t - x0) - h * G
+    def _local(self, t: np.ndarray, loc: np.ndarray | None, want_g: bool = True):
+        row = self._table[:, self.locate(t) if loc is None else loc]
+        x0, h, fd, lnd0, g0, g1 = row[_N_COEF:]
+        g, G = _evaluate(row[:_N_COEF], (t - x0) / h, g0, g1, want_g)
+        return x0, h, fd, lnd0, g, G
+
+    def ln_discount(self, t: np.ndarray, loc: np.ndarray | None = None) -> np.ndarray:
+        x0, h, fd, lnd0, _, G = self._local(t, loc, want_g=False)
+        inside = lnd0 - fd * (t - x0) - h * G
         x_n, l_n, f_n = self._x[:, -1:], self._lnd[:, -1:], self._f[:, -1:]
         out = np.where(t > x_n, l_n - f_n * (t - x_n), inside)
         return np.where(t < 0.0, -self._f[:, :1] * t, out)
 
     def inst_forward(self, t: np.ndarray) -> np.ndarray:
-        _, _, _, fd, g, _ = self._local(t)
+        _, _, fd, _, g, _ = self._local(t, None)
         out = np.where(t > self._x[:, -1:], self._f[:, -1:], fd + g)
         return np.where(t < 0.0, self._f[:, :1], out)

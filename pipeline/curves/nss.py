@@ -116,6 +116,8 @@ def fit_nss(
 
 class NSSBlock(Block):
     """Curves given by NSS parameters ``(G, 6)``; ``times``/``zero_cc`` keep the fitted nodes."""
+    support = None
+
 
     def __init__(self, params: np.ndarray, times: np.ndarray | None = None,
                  zero_cc: np.ndarray | None = None) -> None:
@@ -124,7 +126,7 @@ class NSSBlock(Block):
         super().__init__(empty if times is None else times, empty if zero_cc is None else zero_cc)
         self.params = p
 
-    def ln_discount(self, t: np.ndarray) -> np.ndarray:
+    def ln_discount(self, t: np.ndarray, loc: np.ndarray | None = None) -> np.ndarray:
         return -nss_zero(self.params, t) * t
 
     def inst_forward(self, t: np.ndarray) -> np.ndarray:
