@@ -24,7 +24,7 @@ from pipeline.curves.nss import NSSBlock, fit_nss
 from pipeline.dates import as_days, maturity_dates, year_fraction
 from pipeline.tenors import Tenor, parse_tenor
 
-__all__ = ["BLOCKS", "build_curves", "node_zero_rates", "nss_curves"]
+__all__ = ["BLOCKS", "build_curves", "curves_from_nodes", "node_zero_rates", "nss_curves"]
 
 BLOCKS: dict[str, type[Block]] = {
     "linear_zero": LinearZeroBlock,
@@ -192,3 +192,18 @@ def nss_curves(as_of: object, params: np.ndarray, day_count: str = "ACT/365F") -
     blocks = [(idx, NSSBlock(p[idx]))] if idx.size else []
     reason = [None if g else "no NSS parameters" for g in good]
     return CurveSet(days, "nss", good, reason, blocks, params=p.copy(), day_count=day_count)
+
+
+def curves_from_nodes(
+    as_of: object, times: np.ndarray, zero_cc: np.ndarray, method: str, day_count: str = "ACT/365F"
+) -> CurveSet:
+    """A :class:`CurveSet` straight from node times ``(D, n)`` (year fractions, increasing along each
+    row) and continuous zero rates ``(D, n)``, all days sharing the node count; ``method`` is a
+    node-based method (not ``nss``: use :func:`nss_curves`)."""
+    days = as_days(as_of).reshape(-1)
+    t = np.asarray(times, dtype=float).reshape(days.shape[0], -1)
+    z = np.asarray(zero_cc, dtype=float).reshape(t.shape)
+    block = BLOCKS[method](t, z)
+    ok = np.ones(days.shape[0], dtype=bool)
+    return CurveSet(days, method, ok, [None] * days.shape[0], [(np.arange(days.shape[0]), block)],
+                    day_count=day_count)
