@@ -8,24 +8,28 @@ Computation lives in ``pipeline``; storage in ``warehouse``; a step only wires t
 from __future__ import annotations
 
 import hashlib
-from collections.abc import Callable, Iterable
+from collections.abc import Callable, Iterable, Sequence
 from pathlib import Path
 
-from pipeline.config import Config
-from pipeline.intake import prepare_quotes, route_curve
-from pipeline.readers import read_rate_file
-from warehouse.connect import writer
-from warehouse.loads import FileBatch, LoadOutcome, record_load
+import pandas as pd
 
-__all__ = ["UserError", "prepare_file", "load_files"]
+from pipeline.config import Config
+from pipeline.intake import prepare_many, route_curve, validate_intakes
+from pipeline.readers import ReadResult, read_rate_file
+from warehouse.connect import writer
+from warehouse.loads import FileBatch, Loader, LoadOutcome
+
+__all__ = ["UserError", "load_files", "prepare_files"]
+
+_NO_ROWS = pd.DataFrame()
 
 
 class UserError(RuntimeError):
     """A mistake in what the user asked for; the message is one line."""
 
 
-def prepare_file(path: Path, cfg: Config, curve: str | None = None) -> FileBatch:
-    """Read, route and validate one file into a batch (no store access)."""
+def _read(path: Path, cfg: Config, curve: str | None) -> tuple[dict, ReadResult, str | None]:
+    """Read and route one file (no store access): its lineage fields, what was read, its refusal."""
     try:
         data = path.read_bytes()
     except IsADirectoryError:
@@ -34,40 +38,70 @@ def prepare_file(path: Path, cfg: Config, curve: str | None = None) -> FileBatch
         raise UserError(f"file not found: {path}") from None
     except PermissionError:
         raise UserError(f"cannot read {path}: permission denied") from None
-    sha = hashlib.sha256(data).hexdigest()
+    except OSError as exc:
+        raise UserError(f"cannot read {path}: {exc.strerror or exc}") from None
     routed = route_curve(cfg, path.name, curve)
     date_format = cfg.curves[routed].date_format if routed else "iso"
     result = read_rate_file(data, path.name, date_format=date_format)
-    base = dict(source_file=str(path.resolve()), file_name=path.name, sha256=sha, size_bytes=len(data), curve=routed,
-                layout=result.layout)
-    if result.error is not None:
-        return FileBatch(rows=result.rows, rejected=result.rejected, error=result.error, **base)
-    intake = prepare_quotes(result, cfg, routed, validator=_row_validator())
-    return FileBatch(rows=intake.rows, rejected=intake.rejected, validations=intake.validations, **base)
+    base = dict(source_file=str(path.resolve()), file_name=path.name, sha256=hashlib.sha256(data).hexdigest(),
+                size_bytes=len(data), curve=routed, layout=result.layout)
+    return base, result, result.error
 
 
-def _row_validator():  # noqa: ANN202 - returns the pipeline's validator when it is available
-    try:
-        from pipeline.expectations import validator_for_intake
-    except ImportError:
-        return None
-    return validator_for_intake
+def _gx_validator(rows, cfg):  # noqa: ANN001, ANN202 - the RowValidator of pipeline.intake
+    from pipeline.expectations import validate_rows
+
+    v = validate_rows(rows, cfg)
+    return v.ok, v.reasons, v.check_name, v.summary
+
+
+def prepare_files(paths: Sequence[Path], cfg: Config, curve: str | None = None
+                  ) -> list[FileBatch | LoadOutcome]:
+    """Read, route and validate files into batches (no store access).
+
+    A file that cannot be opened at all yields a ``missing`` outcome instead of a batch. The
+    row-level expectations run once per curve over all the files given.
+    """
+    staged: list[tuple[dict, ReadResult, str | None] | LoadOutcome] = []
+    for p in paths:
+        try:
+            staged.append(_read(Path(p), cfg, curve))
+        except UserError as exc:
+            staged.append(LoadOutcome(str(p), "missing", detail=str(exc)))
+    readable = [s for s in staged if not isinstance(s, LoadOutcome) and s[2] is None]
+    intakes = prepare_many([s[1] for s in readable], cfg, [s[0]["curve"] for s in readable])
+    validate_intakes(intakes, cfg, _gx_validator)
+    by_id = {id(s): it for s, it in zip(readable, intakes, strict=True)}
+    out: list[FileBatch | LoadOutcome] = []
+    for s in staged:
+        if isinstance(s, LoadOutcome):
+            out.append(s)
+            continue
+        base, _result, error = s
+        intake = by_id.get(id(s))
+        if intake is None:
+            out.append(FileBatch(rows=_NO_ROWS, rejected=_NO_ROWS, error=error, **base))
+        else:
+            out.append(FileBatch(rows=intake.rows, rejected=intake.rejected, validations=intake.validations,
+                                 duplicates=intake.duplicates, **base))
+    return out
 
 
 def load_files(cfg: Config, paths: Iterable[Path], curve: str | None = None,
-               on_file: Callable[[LoadOutcome], None] | None = None) -> list[LoadOutcome]:
-    """Load each file in its own transaction; returns one outcome per file, in order."""
+               on_file: Callable[[LoadOutcome], None] | None = None, chunk: int = 400) -> list[LoadOutcome]:
+    """Load each file in its own transaction; returns one outcome per file, in order.
+
+    Files are read and validated in chunks, then recorded one transaction per file through the one
+    writer, so a failure part-way leaves every earlier file committed and the rest untouched.
+    """
+    files = list(paths)
     outcomes: list[LoadOutcome] = []
     with writer(cfg.store_path) as con:
-        for p in paths:
-            try:
-                batch = prepare_file(Path(p), cfg, curve)
-            except UserError as exc:
-                # nothing to record: there are no bytes to checksum
-                outcome = LoadOutcome(str(p), "missing", detail=str(exc))
-            else:
-                outcome = record_load(con, batch)
-            outcomes.append(outcome)
-            if on_file is not None:
-                on_file(outcome)
+        loader = Loader(con)
+        for i in range(0, len(files), chunk):
+            for item in prepare_files(files[i:i + chunk], cfg, curve):
+                outcome = item if isinstance(item, LoadOutcome) else loader.record(item)
+                outcomes.append(outcome)
+                if on_file is not None:
+                    on_file(outcome)
     return outcomes

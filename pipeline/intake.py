@@ -1,30 +1,34 @@
 """From what a reader found to quote rows ready for the archive.
 
-Assigns each row its curve, converts the file's units to decimals, rejects duplicates and tenors the
-curve does not know, runs the row-level expectations, and computes each quote's maturity date.
-Every row ends in exactly one of the two frames returned.
+Assigns each row its curve, converts the file's units to decimals, rejects tenors the curve does not
+know and duplicates, runs the row-level expectations, and computes each quote's maturity date.
+Every row ends in exactly one of the two frames of an :class:`Intake`.
+
+The row-level expectations run over many files at once (:func:`validate_intakes`): one validation
+per curve for a whole batch of files costs little more than one for a single file.
 """
 
 from __future__ import annotations
 
 import fnmatch
-from collections.abc import Callable
+from collections.abc import Callable, Sequence
 from dataclasses import dataclass, field
 
 import numpy as np
 import pandas as pd
 
-from pipeline.config import Config, ConfigError
+from pipeline.config import Config, ConfigError, CurveConfig
 from pipeline.dates import maturity_dates
 from pipeline.readers import ReadResult, to_decimal
 
-__all__ = ["Intake", "route_curve", "prepare_quotes"]
+__all__ = ["Intake", "REJECT_COLUMNS", "ROW_COLUMNS", "prepare_many", "prepare_quotes", "route_curve",
+           "validate_intakes"]
 
 REJECT_COLUMNS = ["line", "raw", "reason", "check_name"]
-ROW_COLUMNS = ["curve", "as_of", "tenor", "maturity_date", "rate", "line"]
+ROW_COLUMNS = ["curve", "as_of", "tenor", "maturity_date", "rate", "line", "raw"]
 
-# (rows of one curve, that curve's config) -> (ok mask, reasons, check names, summary dict)
-RowValidator = Callable[[pd.DataFrame, object], tuple[np.ndarray, pd.Series, pd.Series, dict]]
+# rows of one curve (line, as_of, tenor, rate, raw) and its config -> (ok mask, reasons, checks, summary)
+RowValidator = Callable[[pd.DataFrame, CurveConfig], tuple[np.ndarray, pd.Series, pd.Series, dict]]
 
 
 @dataclass
@@ -33,6 +37,10 @@ class Intake:
     rejected: pd.DataFrame        # REJECT_COLUMNS
     duplicates: pd.DataFrame      # curve, as_of, tenor, lines, detail: same key twice with different values
     validations: list[dict] = field(default_factory=list)
+
+
+def _empty(columns: list[str]) -> pd.DataFrame:
+    return pd.DataFrame({c: pd.Series([], dtype=object) for c in columns})
 
 
 def route_curve(cfg: Config, file_name: str, explicit: str | None = None) -> str | None:
@@ -51,91 +59,169 @@ def route_curve(cfg: Config, file_name: str, explicit: str | None = None) -> str
     return matches[0] if matches else None
 
 
+def _duplicates(part: pd.DataFrame, name: str) -> tuple[np.ndarray, list[pd.DataFrame], pd.DataFrame | None]:
+    """Rows to drop for repeating a (day, tenor) of the same file, their rejections, and findings.
+
+    Identical repeats keep the first line; conflicting values keep none of them, since neither can
+    be trusted over the other.
+    """
+    key = ["file", "as_of", "tenor"]
+    dup = part.duplicated(key, keep=False).to_numpy()
+    drop = np.zeros(len(part), dtype=bool)
+    if not dup.any():
+        return drop, [], None
+    grp = part.groupby(key, sort=False)
+    spread = (grp["rate"].transform("max") - grp["rate"].transform("min")).to_numpy()
+    first_line = grp["line"].transform("min")
+    conflict = dup & (spread > 1e-12)
+    repeat = dup & ~conflict & (part["line"] != first_line).to_numpy()
+    rejected = []
+    finding = None
+    if conflict.any():
+        bad = part.loc[conflict]
+        lines = bad.groupby(key)["line"].apply(lambda s: ", ".join(str(x) for x in sorted(s))).rename("lines")
+        values = bad.groupby(key)["rate"].apply(lambda s: ", ".join(f"{x:.6g}" for x in s)).rename("values")
+        joined = bad.join(lines, on=key).join(values, on=key)
+        rejected.append(_reject(joined, np.ones(len(joined), bool),
+                                "duplicate: conflicting values " + joined["values"].to_numpy(dtype=object)
+                                + " on lines " + joined["lines"].to_numpy(dtype=object), "duplicate"))
+        finding = pd.concat([lines, values], axis=1).reset_index()
+        finding["curve"] = name
+        finding["detail"] = "values " + finding["values"] + " on lines " + finding["lines"] + " of one file"
+        finding = finding[["file", "curve", "as_of", "tenor", "lines", "detail"]]
+    if repeat.any():
+        rejected.append(_reject(part, repeat, "duplicate: repeats line "
+                                + first_line.astype(str).to_numpy(dtype=object) + " with the same value",
+                                "duplicate"))
+    drop = conflict | repeat
+    return drop, rejected, finding
+
+
 def _reject(frame: pd.DataFrame, mask: np.ndarray, reason: object, check: str) -> pd.DataFrame:
-    out = frame.loc[mask, ["line", "raw"]].copy()
-    out["reason"] = reason if np.isscalar(reason) else np.asarray(reason, dtype=object)[mask]
+    out = frame.loc[mask, ["file", "line", "raw"]].copy()
+    out["reason"] = reason if isinstance(reason, str) else np.asarray(reason, dtype=object)[mask]
     out["check_name"] = check
     return out
 
 
-def prepare_quotes(result: ReadResult, cfg: Config, curve: str | None,
-                   validator: RowValidator | None = None) -> Intake:
-    """Turn a :class:`ReadResult` into accepted rows and rejected rows (see the module docstring)."""
-    rejected = [result.rejected.assign(check_name="unparseable")[REJECT_COLUMNS]] if len(result.rejected) else []
-    rows = result.rows.copy()
-    if explicit_curve := curve:
-        rows["curve"] = rows["curve"].where(rows["curve"].notna(), explicit_curve)
-    unknown = ~rows["curve"].isin(list(cfg.curves)).to_numpy()
-    if unknown.any():
-        names = rows["curve"].fillna("")
-        reason = np.where(names.to_numpy() == "",
-                          "no curve: the file name matches no curve's files glob; use --curve",
-                          "unknown curve " + names.map(repr).to_numpy(dtype=object) + "; configured: "
-                          + ", ".join(sorted(cfg.curves)))
-        rejected.append(_reject(rows, unknown, reason, "unknown_curve"))
-        rows = rows.loc[~unknown]
+def prepare_quotes(result: ReadResult, cfg: Config, curve: str | None) -> Intake:
+    """Turn one file's :class:`ReadResult` into accepted rows and rejected rows.
 
-    accepted, dup_findings, validations = [], [], []
-    for name, part in rows.groupby("curve", sort=True):
-        c = cfg.curves[str(name)]
-        part = part.copy()
-        part["rate"] = to_decimal(part["value"].to_numpy(), c.units)
-        known = part["tenor"].isin(c.tenor_labels).to_numpy()
-        if (~known).any():
-            rejected.append(_reject(part, ~known,
-                                    "unknown tenor: " + part["tenor"].astype(str).to_numpy(dtype=object)
-                                    + f" is not one of curves.{name}.tenors", "unknown_tenor"))
-            part = part.loc[known]
+    The row-level expectations are not run here; :func:`validate_intakes` runs them over many files.
+    """
+    return prepare_many([result], cfg, [curve])[0]
 
-        # the same (as_of, tenor) twice in one file: identical repeats keep the first line;
-        # conflicting values keep none of them, since neither can be trusted over the other
-        key = ["as_of", "tenor"]
-        grp = part.groupby(key, sort=False)
-        spread = grp["rate"].transform("max") - grp["rate"].transform("min")
-        first_line = grp["line"].transform("min")
-        conflict = (spread > 1e-12).to_numpy()
-        repeat = (~conflict) & (part["line"] != first_line).to_numpy()
-        if conflict.any():
-            bad = part.loc[conflict]
-            lines = bad.groupby(key)["line"].apply(lambda s: ", ".join(str(x) for x in sorted(s))).rename("lines")
-            values = bad.groupby(key)["rate"].apply(lambda s: ", ".join(f"{x:.6g}" for x in s)).rename("values")
-            joined = bad.join(lines, on=key).join(values, on=key)
-            rejected.append(_reject(joined, np.ones(len(joined), bool),
-                                    "duplicate: conflicting values " + joined["values"].to_numpy(dtype=object)
-                                    + " on lines " + joined["lines"].to_numpy(dtype=object), "duplicate"))
-            d = pd.concat([lines, values], axis=1).reset_index()
-            d["curve"] = name
-            d["detail"] = "values " + d["values"] + " on lines " + d["lines"] + " of one file"
-            dup_findings.append(d[["curve", "as_of", "tenor", "lines", "detail"]])
-        if repeat.any():
-            rejected.append(_reject(part, repeat, "duplicate: repeats line "
-                                    + first_line.astype(str).to_numpy(dtype=object) + " with the same value",
-                                    "duplicate"))
-        part = part.loc[~conflict & ~repeat]
 
-        if validator is not None and len(part):
-            ok, reasons, checks, summary = validator(part, c)
-            validations.append(summary)
-            if (~ok).any():
-                bad = part.loc[~ok, ["line", "raw"]].copy()
-                bad["reason"] = reasons[~ok].to_numpy(dtype=object)
-                bad["check_name"] = checks[~ok].to_numpy(dtype=object)
-                rejected.append(bad)
-                part = part.loc[ok]
+def prepare_many(results: Sequence[ReadResult], cfg: Config, curves: Sequence[str | None]) -> list[Intake]:
+    """:func:`prepare_quotes` for many files at once: one pass over all their rows, split at the end.
 
-        as_of = part["as_of"].to_numpy(dtype="datetime64[D]")
-        maturity = np.empty(len(part), dtype="datetime64[D]")
-        tenor_values = part["tenor"].to_numpy()
-        for tenor in pd.unique(tenor_values):
-            sel = tenor_values == tenor
-            maturity[sel] = maturity_dates(as_of[sel], tenor, c.calendar)
-        part["maturity_date"] = maturity
-        accepted.append(part[ROW_COLUMNS])
+    ``curves[k]`` is the curve file ``k`` was routed to (``None``: only its ``curve`` column says).
+    """
+    n_files = len(results)
+    row_parts = [r.rows.assign(file=k) for k, r in enumerate(results) if len(r.rows)]
+    rej_parts = [r.rejected.assign(file=k, check_name="unparseable") for k, r in enumerate(results)
+                 if len(r.rejected)]
+    rejected: list[pd.DataFrame] = [pd.concat(rej_parts, ignore_index=True)] if rej_parts else []
+    accepted, dup_findings = [], []
+    if row_parts:
+        rows = pd.concat(row_parts, ignore_index=True)
+        files = rows["file"].to_numpy()
+        routed = np.array(list(curves), dtype=object)[files]
+        named = rows["curve"].to_numpy(dtype=object)
+        names = np.where(pd.isna(named), routed, named)
+        rows["curve"] = names
+        unknown = ~np.isin(names, np.array(list(cfg.curves), dtype=object))
+        if unknown.any():
+            shown = np.array(["" if n is None else repr(n) for n in names], dtype=object)
+            reason = np.where(shown == "", "no curve: the file name matches no curve's files glob; use --curve",
+                              "unknown curve " + shown + "; configured: " + ", ".join(sorted(cfg.curves)))
+            rejected.append(_reject(rows, unknown, reason, "unknown_curve"))
+            rows = rows.loc[~unknown]
+            names = names[~unknown]
 
-    out_rows = (pd.concat(accepted, ignore_index=True) if accepted
-                else pd.DataFrame({c: pd.Series([], dtype=object) for c in ROW_COLUMNS}))
-    out_rej = (pd.concat(rejected, ignore_index=True).sort_values("line", kind="stable").reset_index(drop=True)
-               if rejected else pd.DataFrame({c: pd.Series([], dtype=object) for c in REJECT_COLUMNS}))
-    dups = (pd.concat(dup_findings, ignore_index=True) if dup_findings
-            else pd.DataFrame(columns=["curve", "as_of", "tenor", "lines", "detail"]))
-    return Intake(out_rows, out_rej, dups, validations)
+        for name in pd.unique(names):
+            c = cfg.curves[str(name)]
+            part = rows.loc[names == name]
+            part = part.assign(rate=to_decimal(part["value"].to_numpy(), c.units))
+            known = np.isin(part["tenor"].to_numpy(dtype=object), np.array(c.tenor_labels, dtype=object))
+            if (~known).any():
+                rejected.append(_reject(part, ~known,
+                                        "unknown tenor: " + part["tenor"].astype(str).to_numpy(dtype=object)
+                                        + f" is not one of curves.{name}.tenors", "unknown_tenor"))
+                part = part.loc[known]
+            drop, dup_rejected, finding = _duplicates(part, str(name))
+            rejected.extend(dup_rejected)
+            if finding is not None:
+                dup_findings.append(finding)
+            if drop.any():
+                part = part.loc[~drop]
+
+            as_of = part["as_of"].to_numpy(dtype="datetime64[D]")
+            maturity = np.empty(len(part), dtype="datetime64[D]")
+            tenor_values = part["tenor"].to_numpy(dtype=object)
+            for tenor in pd.unique(tenor_values):
+                sel = tenor_values == tenor
+                maturity[sel] = maturity_dates(as_of[sel], tenor, c.calendar)
+            accepted.append(part.assign(maturity_date=maturity))
+
+    def split(frames: list[pd.DataFrame], columns: list[str]) -> list[pd.DataFrame]:
+        if not frames:
+            return [_empty(columns) for _ in range(n_files)]
+        allf = pd.concat(frames, ignore_index=True)
+        allf = allf.sort_values(["file", "line"] if "line" in allf else ["file"], kind="stable")
+        groups = allf.groupby("file", sort=False).indices
+        out = []
+        for k in range(n_files):
+            idx = groups.get(k)
+            out.append(_empty(columns) if idx is None else allf.iloc[idx][columns].reset_index(drop=True))
+        return out
+
+    rows_by_file = split(accepted, ROW_COLUMNS)
+    rej_by_file = split(rejected, REJECT_COLUMNS)
+    dup_by_file = split(dup_findings, ["curve", "as_of", "tenor", "lines", "detail"])
+    return [Intake(rows_by_file[k], rej_by_file[k], dup_by_file[k]) for k in range(n_files)]
+
+
+def validate_intakes(intakes: Sequence[Intake], cfg: Config, validator: RowValidator) -> None:
+    """Run the row-level expectations over the accepted rows of many files at once, in place.
+
+    Rows of each curve from all the files are validated together (one suite run per curve); failing
+    rows move from each file's ``rows`` to its ``rejected`` with the expectation named in the reason.
+    Each file receives the summary of the run its rows took part in.
+    """
+    frames = []
+    for k, it in enumerate(intakes):
+        if len(it.rows):
+            frames.append(it.rows.assign(_file=k, _pos=np.arange(len(it.rows))))
+    if not frames:
+        return
+    allrows = pd.concat(frames, ignore_index=True)
+    failed: dict[int, list[tuple[np.ndarray, np.ndarray, np.ndarray]]] = {}
+    for name in pd.unique(allrows["curve"].to_numpy(dtype=object)):
+        part = allrows.loc[allrows["curve"].to_numpy(dtype=object) == name]
+        ok, reasons, checks, summary = validator(part[["line", "as_of", "tenor", "rate", "raw"]],
+                                                 cfg.curves[str(name)])
+        files = part["_file"].to_numpy()
+        for k in np.unique(files):
+            intakes[int(k)].validations.append(summary)
+        if ok.all():
+            continue
+        bad = ~ok
+        for k in np.unique(files[bad]):
+            sel = bad & (files == k)
+            failed.setdefault(int(k), []).append((
+                part["_pos"].to_numpy()[sel],
+                reasons.to_numpy(dtype=object)[sel],
+                checks.to_numpy(dtype=object)[sel],
+            ))
+    for k, parts in failed.items():
+        it = intakes[k]
+        pos = np.concatenate([p for p, _, _ in parts])
+        mask = np.zeros(len(it.rows), dtype=bool)
+        mask[pos] = True
+        moved = it.rows.iloc[pos][["line", "raw"]].copy()
+        moved["reason"] = np.concatenate([r for _, r, _ in parts])
+        moved["check_name"] = np.concatenate([c for _, _, c in parts])
+        it.rejected = (pd.concat([it.rejected, moved], ignore_index=True)
+                       .sort_values("line", kind="stable").reset_index(drop=True))
+        it.rows = it.rows.loc[~mask].reset_index(drop=True)

@@ -20,7 +20,8 @@ CREATE TABLE IF NOT EXISTS load_log (
     rows_unchanged BIGINT NOT NULL DEFAULT 0,
     rows_rejected  BIGINT NOT NULL DEFAULT 0,
     status         VARCHAR NOT NULL,          -- loaded | refused
-    detail         VARCHAR
+    detail         VARCHAR,                   -- why a file was refused
+    validation     VARCHAR                    -- JSON: the row-level expectation results the rows took part in
 );
 
 -- one row per (curve, as_of, tenor, version): every value ever accepted
@@ -45,14 +46,4 @@ CREATE TABLE IF NOT EXISTS rejected_row (
     raw            VARCHAR,
     reason         VARCHAR NOT NULL,
     check_name     VARCHAR NOT NULL            -- unparseable | out_of_range | duplicate | unknown_tenor | ...
-);
-
--- one row per load: the row-level validation summary (Great Expectations result, as JSON)
-CREATE TABLE IF NOT EXISTS load_validation (
-    load_id        BIGINT NOT NULL,
-    suite          VARCHAR NOT NULL,
-    success        BOOLEAN NOT NULL,
-    evaluated      INTEGER,
-    unsuccessful   INTEGER,
-    summary_json   VARCHAR
 );

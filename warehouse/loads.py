@@ -3,6 +3,11 @@
 A file whose checksum was already loaded changes nothing. Within a load, a quote for an existing
 (curve, as_of, tenor) with a different rate supersedes the current version (stamped, kept); one with
 the same rate is counted as unchanged and adds no version. Frames go in through Arrow.
+
+:class:`Loader` is the one writer's view of the archive for the length of a command: it reads the
+current quotes and the loaded checksums once, keeps them up to date as it records files, and so
+classifies each file's rows without a join against the whole history. That is sound because only
+one process can hold the store's write lock.
 """
 
 from __future__ import annotations
@@ -12,12 +17,13 @@ from dataclasses import dataclass, field
 from datetime import UTC, datetime
 
 import duckdb
+import numpy as np
 import pandas as pd
 import pyarrow as pa
 
 from warehouse.query import fetch_one
 
-__all__ = ["FileBatch", "LoadOutcome", "already_loaded", "record_load", "utc_now"]
+__all__ = ["FileBatch", "LoadOutcome", "Loader", "already_loaded", "record_load", "utc_now"]
 
 # equal rates within this are the same quote re-sent, not a restatement (decimals)
 RATE_EPS = 1e-12
@@ -46,12 +52,13 @@ class FileBatch:
     rejected: pd.DataFrame
     error: str | None = None
     validations: list[dict] = field(default_factory=list)
+    duplicates: pd.DataFrame | None = None
 
 
 @dataclass
 class LoadOutcome:
     source_file: str
-    status: str                 # loaded | refused | already loaded
+    status: str                 # loaded | refused | already loaded | missing
     load_id: int | None = None
     rows_read: int = 0
     rows_accepted: int = 0
@@ -61,6 +68,8 @@ class LoadOutcome:
     rows_rejected: int = 0
     detail: str | None = None
     curves: tuple[str, ...] = ()
+    first_day: object = None
+    last_day: object = None
 
 
 def already_loaded(con: duckdb.DuckDBPyConnection, sha256: str) -> int | None:
@@ -68,125 +77,159 @@ def already_loaded(con: duckdb.DuckDBPyConnection, sha256: str) -> int | None:
     return int(row[0]) if row and row[0] is not None else None
 
 
-_ROW_SCHEMA = pa.schema([
-    ("curve", pa.string()), ("as_of", pa.date32()), ("tenor", pa.string()),
-    ("maturity_date", pa.date32()), ("rate", pa.float64()), ("line", pa.int32()),
-])
-_REJ_SCHEMA = pa.schema([
-    ("line", pa.int32()), ("raw", pa.string()), ("reason", pa.string()), ("check_name", pa.string()),
-])
+def _date32(values: pd.Series) -> pa.Array:
+    return pa.array(np.asarray(values, dtype="datetime64[D]"), type=pa.date32())
 
 
-def _arrow(frame: pd.DataFrame, schema: pa.Schema) -> pa.Table:
-    cols = {}
-    for f in schema:
-        s = frame[f.name] if f.name in frame else pd.Series([None] * len(frame))
-        if pa.types.is_date32(f.type):
-            arr = pa.array(pd.to_datetime(s).to_numpy(dtype="datetime64[D]"), type=pa.date32())
-        else:
-            arr = pa.array(s.tolist() if f.type == pa.string() else s.to_numpy(), type=f.type)
-        cols[f.name] = arr
-    return pa.table(cols, schema=schema)
+def _str(values: pd.Series) -> pa.Array:
+    return pa.array(values.tolist(), type=pa.string())
+
+
+class Loader:
+    """Records files through one writer connection (see the module docstring)."""
+
+    def __init__(self, con: duckdb.DuckDBPyConnection) -> None:
+        self.con = con
+        self._current: dict[str, dict[tuple[int, str], float]] = {}
+        self._loaded: dict[str, int] | None = None
+        self._last_id: int | None = None
+
+    def _next_load_id(self) -> int:
+        # the one writer numbers loads itself; an id of a rolled-back load is simply reused
+        if self._last_id is None:
+            self._last_id = int(fetch_one(self.con, "SELECT coalesce(max(load_id), 0) FROM load_log")[0])  # type: ignore[index]
+        return self._last_id + 1
+
+    def _loaded_shas(self) -> dict[str, int]:
+        if self._loaded is None:
+            self._loaded = {
+                sha: int(lid) for sha, lid in self.con.execute(
+                    "SELECT sha256, min(load_id) FROM load_log WHERE status = 'loaded' GROUP BY sha256"
+                ).fetchall()
+            }
+        return self._loaded
+
+    def _curve_state(self, curve: str) -> dict[tuple[int, str], float]:
+        """Current rate by (day number, tenor) for one curve, read on first use."""
+        state = self._current.get(curve)
+        if state is None:
+            rows = self.con.execute(
+                "SELECT date_diff('day', DATE '1970-01-01', as_of), tenor, rate FROM quote_version "
+                "WHERE curve = ? AND superseded_at IS NULL", [curve],
+            ).fetchall()
+            state = {(d, t): r for d, t, r in rows}
+            self._current[curve] = state
+        return state
+
+    @staticmethod
+    def _keys(rows: pd.DataFrame) -> list[tuple[int, str]]:
+        days = rows["as_of"].to_numpy(dtype="datetime64[D]").astype(np.int64).tolist()
+        return list(zip(days, rows["tenor"].tolist(), strict=True))
+
+    def _classify(self, rows: pd.DataFrame) -> np.ndarray:
+        """Each row's previous current rate (NaN where the key is new)."""
+        old = np.full(len(rows), np.nan)
+        for curve, idx in rows.groupby("curve", sort=False).indices.items():
+            state = self._curve_state(str(curve))
+            if state:
+                old[idx] = [state.get(k, np.nan) for k in self._keys(rows.iloc[idx])]
+        return old
+
+    def _remember(self, rows: pd.DataFrame) -> None:
+        for curve, idx in rows.groupby("curve", sort=False).indices.items():
+            part = rows.iloc[idx]
+            self._curve_state(str(curve)).update(zip(self._keys(part), part["rate"].tolist(), strict=True))
+
+    def record(self, batch: FileBatch) -> LoadOutcome:
+        """Record one file in a single transaction. Safe to rerun: a repeat is "already loaded"."""
+        con = self.con
+        loaded = self._loaded_shas()
+        prior = loaded.get(batch.sha256)
+        if prior is not None:
+            return LoadOutcome(batch.source_file, "already loaded", prior, detail=f"same content as load {prior}")
+        started = utc_now()
+        status = "refused" if batch.error is not None else "loaded"
+        rows = batch.rows
+        n_rej = 0 if batch.error is not None else len(batch.rejected)
+        old = self._classify(rows) if len(rows) else np.array([])
+        rates = rows["rate"].to_numpy(dtype=float) if len(rows) else np.array([])
+        is_new = np.isnan(old)
+        changed = ~is_new & (np.abs(old - rates) > RATE_EPS)
+        new, revised = int(is_new.sum()), int(changed.sum())
+        unchanged = len(rows) - new - revised
+        curves = tuple(sorted({str(c) for c in rows["curve"]})) if len(rows) else ()
+
+        con.execute("BEGIN TRANSACTION")
+        try:
+            load_id = self._next_load_id()
+            if batch.error is not None:
+                con.execute("INSERT INTO rejected_row VALUES (?, ?, 0, NULL, ?, 'unreadable')",
+                            [load_id, batch.source_file, batch.error])
+            write = is_new | changed
+            if revised:
+                sup = rows.loc[changed]
+                stamp = pa.table({"curve": _str(sup["curve"]), "as_of": _date32(sup["as_of"]),
+                                  "tenor": _str(sup["tenor"])})
+                con.register("_restated", stamp)
+                con.execute(
+                    "UPDATE quote_version AS q SET superseded_at = ? FROM _restated r "
+                    "WHERE q.curve = r.curve AND q.as_of = r.as_of AND q.tenor = r.tenor AND q.superseded_at IS NULL",
+                    [started],
+                )
+                con.unregister("_restated")
+            if write.any():
+                w = rows if write.all() else rows.loc[write]
+                n = len(w)
+                incoming = pa.table({
+                    "curve": _str(w["curve"]), "as_of": _date32(w["as_of"]), "tenor": _str(w["tenor"]),
+                    "maturity_date": _date32(w["maturity_date"]), "rate": pa.array(w["rate"].to_numpy(float)),
+                    "recorded_at": pa.array([started] * n, type=pa.timestamp("us")),
+                    "superseded_at": pa.nulls(n, type=pa.timestamp("us")),
+                    "load_id": pa.array(np.full(n, load_id, dtype=np.int64)),
+                    "source_file": pa.array([batch.source_file] * n, type=pa.string()),
+                    "line": pa.array(w["line"].to_numpy(dtype=np.int32)),
+                }).sort_by([("curve", "ascending"), ("as_of", "ascending"), ("tenor", "ascending")])
+                # DuckDB reads the local Arrow table by its name (a replacement scan, no catalog change)
+                con.execute("INSERT INTO quote_version SELECT * FROM incoming")
+                del incoming
+            if n_rej:
+                rj = batch.rejected
+                con.register("_rejected", pa.table({
+                    "line": pa.array(rj["line"].to_numpy(dtype=np.int32)), "raw": _str(rj["raw"]),
+                    "reason": _str(rj["reason"]), "check_name": _str(rj["check_name"]),
+                }))
+                con.execute("INSERT INTO rejected_row SELECT ?, ?, line, raw, reason, check_name FROM _rejected",
+                            [load_id, batch.source_file])
+                con.unregister("_rejected")
+            # the log row goes in last, so its finished_at is the moment just before the commit
+            con.execute(
+                "INSERT INTO load_log VALUES (?, ?, ?, ?, ?, ?, ?, ?, ?, ?, ?, ?, ?, ?, ?, ?, ?)",
+                [load_id, batch.source_file, batch.file_name, batch.sha256, batch.size_bytes,
+                 ",".join(curves) or batch.curve, batch.layout, started, utc_now(), len(rows) + n_rej, len(rows),
+                 revised, unchanged, n_rej, status, batch.error,
+                 json.dumps(batch.validations, default=str) if batch.validations else None],
+            )
+            con.execute("COMMIT")
+        except BaseException:
+            try:
+                con.execute("ROLLBACK")
+            except duckdb.Error:
+                pass
+            # the in-memory state below changes only after a commit, so it stays true
+            raise
+        self._last_id = load_id
+        if batch.error is not None:
+            return LoadOutcome(batch.source_file, "refused", load_id, detail=batch.error)
+        loaded[batch.sha256] = load_id
+        if write.any():
+            self._remember(rows.loc[write])
+        days = rows["as_of"] if len(rows) else None
+        return LoadOutcome(batch.source_file, "loaded", load_id, len(rows) + n_rej, len(rows), new, revised,
+                           unchanged, n_rej, curves=curves,
+                           first_day=None if days is None else days.min(),
+                           last_day=None if days is None else days.max())
 
 
 def record_load(con: duckdb.DuckDBPyConnection, batch: FileBatch) -> LoadOutcome:
-    """Record one file in a single transaction (see the module docstring). Safe to rerun."""
-    started = utc_now()
-    con.execute("BEGIN TRANSACTION")
-    try:
-        prior = already_loaded(con, batch.sha256)
-        if prior is not None:
-            con.execute("ROLLBACK")
-            return LoadOutcome(batch.source_file, "already loaded", prior,
-                               detail=f"same content as load {prior}")
-        load_id = int(fetch_one(con, "SELECT nextval('load_id_seq')")[0])  # type: ignore[index]
-        if batch.error is not None:
-            con.execute(
-                "INSERT INTO load_log (load_id, source_file, file_name, sha256, size_bytes, curve, layout, "
-                "started_at, finished_at, status, detail) VALUES (?, ?, ?, ?, ?, ?, ?, ?, ?, 'refused', ?)",
-                [load_id, batch.source_file, batch.file_name, batch.sha256, batch.size_bytes, batch.curve,
-                 batch.layout, started, utc_now(), batch.error],
-            )
-            con.execute(
-                "INSERT INTO rejected_row VALUES (?, ?, 0, NULL, ?, 'unreadable')",
-                [load_id, batch.source_file, batch.error],
-            )
-            con.execute("COMMIT")
-            return LoadOutcome(batch.source_file, "refused", load_id, detail=batch.error)
-
-        rows = _arrow(batch.rows, _ROW_SCHEMA)
-        con.register("_incoming", rows)
-        con.execute(
-            """
-            CREATE OR REPLACE TEMP TABLE _classified AS
-            SELECT i.*, q.rate AS old_rate
-            FROM _incoming i
-            LEFT JOIN quote_version q
-              ON q.curve = i.curve AND q.as_of = i.as_of AND q.tenor = i.tenor AND q.superseded_at IS NULL
-            """
-        )
-        con.unregister("_incoming")
-        counts = fetch_one(
-            con,
-            f"""
-            SELECT count(*) FILTER (WHERE old_rate IS NULL),
-                   count(*) FILTER (WHERE old_rate IS NOT NULL AND abs(old_rate - rate) > {RATE_EPS}),
-                   count(*) FILTER (WHERE old_rate IS NOT NULL AND abs(old_rate - rate) <= {RATE_EPS})
-            FROM _classified
-            """,
-        )
-        new, revised, unchanged = (int(x) for x in counts)  # type: ignore[union-attr]
-        if revised:
-            con.execute(
-                f"""
-                UPDATE quote_version AS q SET superseded_at = ?
-                FROM _classified c
-                WHERE q.curve = c.curve AND q.as_of = c.as_of AND q.tenor = c.tenor
-                  AND q.superseded_at IS NULL AND c.old_rate IS NOT NULL AND abs(c.old_rate - c.rate) > {RATE_EPS}
-                """,
-                [started],
-            )
-        con.execute(
-            f"""
-            INSERT INTO quote_version
-            SELECT curve, as_of, tenor, maturity_date, rate, ? AS recorded_at, NULL AS superseded_at,
-                   ? AS load_id, ? AS source_file, line
-            FROM _classified
-            WHERE old_rate IS NULL OR abs(old_rate - rate) > {RATE_EPS}
-            ORDER BY curve, as_of, tenor
-            """,
-            [started, load_id, batch.source_file],
-        )
-        con.execute("DROP TABLE _classified")
-        rejected = _arrow(batch.rejected, _REJ_SCHEMA)
-        if rejected.num_rows:
-            con.register("_rejected", rejected)
-            con.execute(
-                "INSERT INTO rejected_row SELECT ?, ?, line, raw, reason, check_name FROM _rejected",
-                [load_id, batch.source_file],
-            )
-            con.unregister("_rejected")
-        for v in batch.validations:
-            con.execute(
-                "INSERT INTO load_validation VALUES (?, ?, ?, ?, ?, ?)",
-                [load_id, v.get("suite", ""), bool(v.get("success", False)), v.get("evaluated"),
-                 v.get("unsuccessful"), json.dumps(v, default=str)],
-            )
-        accepted = rows.num_rows
-        n_rej = rejected.num_rows
-        curves = tuple(sorted(set(batch.rows["curve"]))) if len(batch.rows) else ()
-        con.execute(
-            "INSERT INTO load_log VALUES (?, ?, ?, ?, ?, ?, ?, ?, ?, ?, ?, ?, ?, ?, 'loaded', NULL)",
-            [load_id, batch.source_file, batch.file_name, batch.sha256, batch.size_bytes,
-             ",".join(curves) or batch.curve, batch.layout, started, utc_now(),
-             accepted + n_rej, accepted, revised, unchanged, n_rej],
-        )
-        con.execute("COMMIT")
-    except BaseException:
-        try:
-            con.execute("ROLLBACK")
-        except duckdb.Error:
-            pass
-        raise
-    return LoadOutcome(batch.source_file, "loaded", load_id, accepted + n_rej, accepted, new, revised,
-                       unchanged, n_rej, curves=curves)
+    """Record one file with a fresh :class:`Loader` (convenient for a single file)."""
+    return Loader(con).record(batch)
