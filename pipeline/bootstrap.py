@@ -158,14 +158,16 @@ def _newton(times, lnd0, multi, pay_t, cash, starts, make_block):
     col_of = np.full(n, -1)
     col_of[multi] = np.arange(u)
     loc = None
+    # bonds of different tenors share most coupon dates: evaluate each day's distinct times once
+    compact, inverse = _distinct_times(pay_t)
 
     def ln_d(nodes: np.ndarray) -> np.ndarray:
         nonlocal loc
         with np.errstate(invalid="ignore", divide="ignore"):
             block = make_block(times, -nodes / times)
         if loc is None:
-            loc = block.locate(pay_t)
-        return block.ln_discount(pay_t, loc)
+            loc = block.locate(compact)
+        return np.take_along_axis(block.ln_discount(compact, loc), inverse, axis=1)
 
     support = getattr(make_block, "support", None)
     right = np.zeros(pay_t.shape, dtype=np.int64)
@@ -196,6 +198,21 @@ def _newton(times, lnd0, multi, pay_t, cash, starts, make_block):
         L[:, multi] = L[:, multi] + np.where(settled[:, None], 0.0, step)
         L[bad] = np.nan
     return L, ok & (err < _ACCEPT_TOL)
+
+
+def _distinct_times(t: np.ndarray) -> tuple[np.ndarray, np.ndarray]:
+    """Each row's distinct values, padded with the row's largest, ``(G, U)``, and the position of every
+    input value among them, ``(G, P)``: ``take_along_axis(compact, inverse, 1) == t``."""
+    order = np.argsort(t, axis=1, kind="stable")
+    s = np.take_along_axis(t, order, axis=1)
+    fresh = np.ones(s.shape, dtype=bool)
+    fresh[:, 1:] = s[:, 1:] != s[:, :-1]
+    rank = np.cumsum(fresh, axis=1) - 1
+    compact = np.repeat(s[:, -1:], int(rank.max()) + 1 if rank.size else 0, axis=1)
+    np.put_along_axis(compact, rank, s, axis=1)
+    inverse = np.empty_like(rank)
+    np.put_along_axis(inverse, order, rank, axis=1)
+    return compact, inverse
 
 
 def _jacobian(L, base, ln_d, multi, col_of, right, support):
