@@ -35,7 +35,12 @@ class _Exit(Exception):
 def _console(stderr: bool = False):  # noqa: ANN202
     from rich.console import Console
 
-    return Console(stderr=stderr, highlight=False, soft_wrap=True)
+    import sys as _sys
+
+    stream = _sys.stderr if stderr else _sys.stdout
+    # wide output when piped or captured, so tables are not squeezed into 80 columns
+    width = None if stream.isatty() else 180
+    return Console(stderr=stderr, highlight=False, soft_wrap=True, width=width)
 
 
 def _config():  # noqa: ANN202
@@ -170,6 +175,141 @@ def status() -> None:
     with reader(cfg.store_path) as con:
         info = store_status(con)
     print_status(info, cfg, _console())
+
+
+# --- check and build -----------------------------------------------------------------------------
+
+def _day(value: str | None, option: str) -> str | None:
+    if value is None:
+        return None
+    import numpy as np
+
+    try:
+        return str(np.datetime64(value, "D"))
+    except ValueError:
+        raise _Exit(f"{option} {value!r} is not a date (YYYY-MM-DD)", 2) from None
+
+
+@app.command()
+def check(
+    curve: Annotated[str | None, typer.Option("--curve", help="Only this curve.")] = None,
+    first: Annotated[str | None, typer.Option("--from", help="First as-of date (YYYY-MM-DD).")] = None,
+    last: Annotated[str | None, typer.Option("--to", help="Last as-of date (YYYY-MM-DD).")] = None,
+    all_days: Annotated[bool, typer.Option("--all", help="Re-check every day, not only new ones.")] = False,
+    accept: Annotated[tuple[str, str] | None, typer.Option("--accept", metavar="CURVE DAY",
+                                                          help="Override a day's reject findings.")] = None,
+) -> None:
+    """Run the curve-level data checks and show the open findings; exit 1 if any reject is open."""
+    from flows.check_step import accept_day, run_checks
+    from flows.output import print_findings
+
+    cfg = _config()
+    if curve is not None:
+        cfg.curve(curve)
+    console = _console()
+    if accept is not None:
+        a_curve, a_day = accept
+        n = accept_day(cfg, a_curve, _day(a_day, "--accept") or a_day)
+        console.print(f"accepted {a_curve} {a_day}: {n} reject finding(s) overridden; the day will be built")
+        return
+    summary = run_checks(cfg, curve, _day(first, "--from"), _day(last, "--to"), all_days)
+    for name, info in summary.curves.items():
+        console.print(f"{name}: checked {info['days_checked']:,} day(s), {info['findings']:,} finding(s)")
+    if print_findings(cfg, console, curve, _day(first, "--from"), _day(last, "--to")):
+        raise typer.Exit(1)
+
+
+@app.command()
+def build(
+    curve: Annotated[str | None, typer.Option("--curve", help="Only this curve.")] = None,
+    first: Annotated[str | None, typer.Option("--from", help="First as-of date (YYYY-MM-DD).")] = None,
+    last: Annotated[str | None, typer.Option("--to", help="Last as-of date (YYYY-MM-DD).")] = None,
+    rebuild: Annotated[bool, typer.Option("--rebuild", help="Rebuild days already built.")] = False,
+    method: Annotated[str | None, typer.Option("--method", help="What-if interpolation method.")] = None,
+) -> None:
+    """Build zero curves and forward surfaces for days not yet built."""
+    from pipeline.config import INTERPOLATIONS
+
+    if method is not None and method not in INTERPOLATIONS:
+        raise _Exit(f"--method {method!r} is not allowed; allowed: {', '.join(INTERPOLATIONS)}", 2)
+    from flows.build_step import run_build
+
+    cfg = _config()
+    if curve is not None:
+        cfg.curve(curve)
+    console = _console()
+    with _progress(console) as progress:
+        tasks: dict[str, int] = {}
+
+        def on_progress(name: str, done: int, total: int) -> None:
+            if name not in tasks:
+                tasks[name] = progress.add_task(f"building {name}", total=total)
+            progress.update(tasks[name], completed=done)
+
+        summary = run_build(cfg, curve, _day(first, "--from"), _day(last, "--to"), rebuild, method, on_progress)
+    for name, info in summary.curves.items():
+        extra = f", {info['held']} held back by reject findings" if info["held"] else ""
+        failed = f", {info['failed']} could not be built" if info["failed"] else ""
+        console.print(f"{name} ({info['scenario']}, {info['method']}): built {info['days_built']:,} day(s), "
+                      f"{info['forwards']:,} forwards{failed}{extra}")
+
+
+@app.command()
+def realize() -> None:
+    """Match forwards whose target date has been observed with the realised rate."""
+    from flows.realize_step import run_realize
+
+    cfg = _config()
+    summary = run_realize(cfg)
+    console = _console()
+    for name, info in summary.curves.items():
+        again = f", {info['re_derived']:,} re-derived after a restatement" if info["re_derived"] else ""
+        console.print(f"{name}: realised {info['realized']:,} forward(s){again}; {info['pending']:,} pending")
+
+
+def _months_option(value: str | None, option: str) -> int | None:
+    if value is None:
+        return None
+    from pipeline.tenors import TenorError, parse_tenor
+
+    try:
+        t = parse_tenor(value, allow_zero=True)
+    except TenorError as exc:
+        raise _Exit(f"{option}: {exc}", 2) from None
+    if t.months is None:
+        raise _Exit(f"{option} {value!r} must be whole months (e.g. 3M, 1Y)", 2)
+    return t.months
+
+
+@app.command()
+def audit(
+    curve: Annotated[str | None, typer.Option("--curve", help="Only this curve.")] = None,
+    start: Annotated[str | None, typer.Option("--start", help="Only forwards starting this far ahead (e.g. 1Y).")
+                     ] = None,
+    tenor: Annotated[str | None, typer.Option("--tenor", help="Only forwards of this tenor (e.g. 3M).")] = None,
+    first: Annotated[str | None, typer.Option("--from", help="First as-of date (YYYY-MM-DD).")] = None,
+    last: Annotated[str | None, typer.Option("--to", help="Last as-of date (YYYY-MM-DD).")] = None,
+    fmt: Annotated[str, typer.Option("--format", help="table | csv | json")] = "table",
+) -> None:
+    """Forecast-error statistics by horizon, with a plain-language line for each."""
+    if fmt not in ("table", "csv", "json"):
+        raise _Exit(f"--format {fmt!r} is not allowed; allowed: table, csv, json", 2)
+    s_months, t_months = _months_option(start, "--start"), _months_option(tenor, "--tenor")
+    from flows.audit_step import run_audit
+    from flows.output import print_audit
+
+    cfg = _config()
+    if curve is not None:
+        cfg.curve(curve)
+    results = run_audit(cfg, curve, _day(first, "--from"), _day(last, "--to"))
+    print_audit(results, fmt, _console(), s_months, t_months)
+
+
+def _progress(console):  # noqa: ANN001, ANN202
+    from rich.progress import BarColumn, MofNCompleteColumn, Progress, TextColumn, TimeElapsedColumn
+
+    return Progress(TextColumn("{task.description}"), BarColumn(), MofNCompleteColumn(), TimeElapsedColumn(),
+                    console=console, transient=True, disable=not console.is_terminal)
 
 
 # --- demo ----------------------------------------------------------------------------------------

@@ -99,3 +99,88 @@ def print_status(info: dict[str, Any], cfg, console) -> None:  # noqa: ANN001
         console.print(f"open findings: {parts}")
     if info["pending_forwards"] is not None:
         console.print(f"pending forwards (target date not yet observed): {info['pending_forwards']:,}")
+
+
+def print_findings(cfg, console, curve: str | None = None, first: str | None = None,  # noqa: ANN001
+                   last: str | None = None) -> int:
+    """Print open findings grouped by check and curve; returns the number of open reject findings."""
+    from rich.table import Table
+
+    from warehouse.connect import reader
+
+    where, params = ["TRUE"], []
+    if curve:
+        where.append("curve = ?")
+        params.append(curve)
+    if first:
+        where.append("as_of >= CAST(? AS DATE)")
+        params.append(first)
+    if last:
+        where.append("as_of <= CAST(? AS DATE)")
+        params.append(last)
+    with reader(cfg.store_path) as con:
+        groups = con.execute(
+            f"""SELECT check_name, curve, severity, count(*), min(as_of), max(as_of),
+                       arg_min(coalesce(tenor || ': ', '') || detail, as_of)
+                FROM open_findings WHERE {' AND '.join(where)}
+                GROUP BY ALL ORDER BY check_name, curve, severity""", params).fetchall()
+        rejects = con.execute(f"SELECT count(*) FROM open_findings WHERE severity = 'reject' AND "
+                              f"{' AND '.join(where)}", params).fetchall()[0][0]
+    if not groups:
+        console.print("no open findings")
+        return 0
+    t = Table(title="open findings")
+    for col in ("check", "curve", "severity", "count", "first day", "last day", "first detail"):
+        t.add_column(col)
+    for check, cur, sev, n, lo, hi, detail in groups:
+        t.add_row(check, cur, sev, f"{n:,}", str(lo), str(hi), str(detail)[:70])
+    console.print(t)
+    if rejects:
+        console.print(f"{rejects} reject finding(s) open: those days are kept out of build until restated "
+                      "or accepted (afterward check --accept CURVE DAY)")
+    return int(rejects)
+
+
+def _label(months: int) -> str:
+    return f"{months // 12}Y" if months % 12 == 0 and months else f"{months}M"
+
+
+def print_audit(results: dict, fmt: str, console, start: int | None = None, tenor: int | None = None) -> None:  # noqa: ANN001
+    """The audit by horizon: a rich table and verdict lines, or CSV / JSON for scripts."""
+    import pandas as pd
+
+    frames = [f for f in results.values() if len(f)]
+    if not frames:
+        console.print("no outcomes yet: run 'afterward build' and 'afterward realize' first")
+        return
+    allf = pd.concat(frames, ignore_index=True)
+    if start is not None:
+        allf = allf.loc[allf["start_months"] == start]
+    if tenor is not None:
+        allf = allf.loc[allf["tenor_months"] == tenor]
+    if fmt in ("csv", "json"):
+        table = pa.Table.from_pandas(allf.drop(columns=["computed_at"], errors="ignore"), preserve_index=False)
+        write_result(table, fmt, None, console)
+        return
+    from rich.table import Table
+
+    main = allf.loc[allf["regime"] == "all"]
+    t = Table(title="forecast error by horizon (forward minus realised, bp)")
+    for col in ("curve", "start", "tenor", "n", "mean", "HAC t", "RMSE", "no-change RMSE", "ratio", "DM p",
+                "MZ p", "FB beta", "hit rate"):
+        t.add_column(col, justify="right" if col not in ("curve",) else "left")
+
+    def num(v, fmt_: str = "{:.1f}") -> str:  # noqa: ANN001
+        return "" if v is None or (isinstance(v, float) and not math.isfinite(v)) else fmt_.format(v)
+
+    for _, r in main.iterrows():
+        t.add_row(r["curve"], _label(int(r["start_months"])), _label(int(r["tenor_months"])), f"{int(r['n']):,}",
+                  num(r["mean_error_bp"]), num(r["hac_t"], "{:.2f}"), num(r["rmse_bp"]), num(r["rw_rmse_bp"]),
+                  num(r["rmse_ratio"], "{:.2f}"), num(r["dm_pvalue"], "{:.3f}"), num(r["mz_pvalue"], "{:.3f}"),
+                  num(r["fb_beta"], "{:.2f}"), num(r["hit_rate"], "{:.0%}"))
+    console.print(t)
+    for _, r in main.iterrows():
+        console.print(f"{r['curve']} {_label(int(r['start_months']))} x {_label(int(r['tenor_months']))}: "
+                      f"{r['verdict']}")
+    console.print("Statistical findings for model validation, not investment advice; overlapping forecasts are "
+                  "accounted for with Newey-West standard errors.")

@@ -14,7 +14,7 @@ from pathlib import Path
 import pandas as pd
 
 from pipeline.config import Config
-from pipeline.intake import prepare_many, route_curve, validate_intakes
+from pipeline.intake import load_findings, prepare_many, route_curve, validate_intakes
 from pipeline.readers import ReadResult, read_rate_file
 from warehouse.connect import writer
 from warehouse.loads import FileBatch, Loader, LoadOutcome
@@ -83,7 +83,7 @@ def prepare_files(paths: Sequence[Path], cfg: Config, curve: str | None = None
             out.append(FileBatch(rows=_NO_ROWS, rejected=_NO_ROWS, error=error, **base))
         else:
             out.append(FileBatch(rows=intake.rows, rejected=intake.rejected, validations=intake.validations,
-                                 duplicates=intake.duplicates, **base))
+                                 findings=load_findings(intake, cfg), **base))
     return out
 
 

@@ -21,7 +21,7 @@ from pipeline.config import Config, ConfigError, CurveConfig
 from pipeline.dates import maturity_dates
 from pipeline.readers import ReadResult, to_decimal
 
-__all__ = ["Intake", "REJECT_COLUMNS", "ROW_COLUMNS", "prepare_many", "prepare_quotes", "route_curve",
+__all__ = ["Intake", "REJECT_COLUMNS", "ROW_COLUMNS", "load_findings", "prepare_many", "prepare_quotes", "route_curve",
            "validate_intakes"]
 
 REJECT_COLUMNS = ["line", "raw", "reason", "check_name"]
@@ -182,12 +182,42 @@ def prepare_many(results: Sequence[ReadResult], cfg: Config, curves: Sequence[st
     return [Intake(rows_by_file[k], rej_by_file[k], dup_by_file[k]) for k in range(n_files)]
 
 
+def load_findings(intake: Intake, cfg: Config) -> pd.DataFrame:
+    """Findings a load raises for one file: rows that broke a row-level expectation on a known day,
+    and (day, tenor) pairs quoted twice with different values. Columns: curve, as_of, check_name,
+    severity, tenor, detail."""
+    parts = []
+    rj = intake.rejected
+    if len(rj) and "as_of" in rj:
+        named = rj.loc[rj["as_of"].notna() & rj["check_name"].isin(["out_of_range", "unparseable"])]
+        if len(named):
+            parts.append(pd.DataFrame({
+                "curve": named["curve"].to_numpy(dtype=object), "as_of": named["as_of"].to_numpy(),
+                "check_name": named["check_name"].to_numpy(dtype=object),
+                "tenor": named["tenor"].to_numpy(dtype=object),
+                "detail": ("line " + named["line"].astype(str) + ": "
+                           + named["reason"].astype(str)).to_numpy(dtype=object),
+            }))
+    d = intake.duplicates
+    if len(d):
+        parts.append(pd.DataFrame({"curve": d["curve"].to_numpy(dtype=object), "as_of": d["as_of"].to_numpy(),
+                                   "check_name": "duplicate", "tenor": d["tenor"].to_numpy(dtype=object),
+                                   "detail": d["detail"].to_numpy(dtype=object)}))
+    if not parts:
+        return _empty(["curve", "as_of", "check_name", "severity", "tenor", "detail"])
+    out = pd.concat(parts, ignore_index=True)
+    out["severity"] = [cfg.curves[str(c)].severity[str(k)]
+                       for c, k in zip(out["curve"], out["check_name"], strict=True)]
+    return out[["curve", "as_of", "check_name", "severity", "tenor", "detail"]]
+
+
 def validate_intakes(intakes: Sequence[Intake], cfg: Config, validator: RowValidator) -> None:
     """Run the row-level expectations over the accepted rows of many files at once, in place.
 
     Rows of each curve from all the files are validated together (one suite run per curve); failing
     rows move from each file's ``rows`` to its ``rejected`` with the expectation named in the reason.
-    Each file receives the summary of the run its rows took part in.
+    Each file receives the summary of the run its rows took part in. Rows moved to ``rejected`` keep
+    their ``curve``, ``as_of`` and ``tenor``, so a finding can name the day.
     """
     frames = []
     for k, it in enumerate(intakes):
@@ -219,7 +249,7 @@ def validate_intakes(intakes: Sequence[Intake], cfg: Config, validator: RowValid
         pos = np.concatenate([p for p, _, _ in parts])
         mask = np.zeros(len(it.rows), dtype=bool)
         mask[pos] = True
-        moved = it.rows.iloc[pos][["line", "raw"]].copy()
+        moved = it.rows.iloc[pos][["line", "raw", "curve", "as_of", "tenor"]].copy()
         moved["reason"] = np.concatenate([r for _, r, _ in parts])
         moved["check_name"] = np.concatenate([c for _, _, c in parts])
         it.rejected = (pd.concat([it.rejected, moved], ignore_index=True)

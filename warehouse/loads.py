@@ -52,7 +52,7 @@ class FileBatch:
     rejected: pd.DataFrame
     error: str | None = None
     validations: list[dict] = field(default_factory=list)
-    duplicates: pd.DataFrame | None = None
+    findings: pd.DataFrame | None = None     # curve, as_of, check_name, severity, tenor, detail
 
 
 @dataclass
@@ -201,6 +201,14 @@ class Loader:
                 con.execute("INSERT INTO rejected_row SELECT ?, ?, line, raw, reason, check_name FROM _rejected",
                             [load_id, batch.source_file])
                 con.unregister("_rejected")
+            if batch.findings is not None and len(batch.findings):
+                f = batch.findings
+                raised = pa.table({  # noqa: F841 - read by DuckDB by its name
+                    "curve": _str(f["curve"]), "as_of": _date32(f["as_of"]), "check_name": _str(f["check_name"]),
+                    "severity": _str(f["severity"]), "tenor": _str(f["tenor"]), "detail": _str(f["detail"]),
+                })
+                con.execute("INSERT INTO finding SELECT curve, as_of, check_name, severity, tenor, detail, ?, ?, "
+                            "NULL, NULL FROM raised", [started, load_id])
             # the log row goes in last, so its finished_at is the moment just before the commit
             con.execute(
                 "INSERT INTO load_log VALUES (?, ?, ?, ?, ?, ?, ?, ?, ?, ?, ?, ?, ?, ?, ?, ?, ?)",

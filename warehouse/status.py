@@ -48,7 +48,7 @@ def store_status(con: duckdb.DuckDBPyConnection) -> dict[str, Any]:
             ).fetchall()
         ]
     info["pending_forwards"] = None
-    if table_exists(con, "forward_pending"):
-        row = fetch_one(con, "SELECT count(*) FROM forward_pending")
+    if table_exists(con, "pending_forwards"):
+        row = fetch_one(con, "SELECT count(*) FROM pending_forwards")
         info["pending_forwards"] = int(row[0]) if row else 0
     return info

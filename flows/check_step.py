@@ -1,0 +1,132 @@
+"""The check step: curve-level data checks over the stored quotes, recorded as findings.
+
+Incremental by default: only days whose quotes changed since the curve's last check (new or
+restated) are checked, with about a year of earlier days as context; ``all_days`` re-checks the
+whole history. Findings of re-checked days are closed ("re-checked") and raised afresh, never
+deleted. Row-level findings raised by loads are closed when their day is restated.
+"""
+
+from __future__ import annotations
+
+import getpass
+from dataclasses import dataclass, field
+
+import numpy as np
+import pandas as pd
+
+from pipeline.checks import curve_checks, inversion_episodes
+from pipeline.config import Config
+from warehouse.connect import writer
+from warehouse.frames import read_quote_panel
+from warehouse.loads import utc_now
+from warehouse.query import fetch_one, fetch_value
+
+__all__ = ["CURVE_LEVEL_CHECKS", "CheckSummary", "accept_day", "run_checks"]
+
+CURVE_LEVEL_CHECKS = ("missing_day", "missing_tenor", "stale_curve", "jump", "inversion")
+CONTEXT_DAYS = 300  # observed days before the first day checked: history for the outlier test
+
+
+@dataclass
+class CheckSummary:
+    curves: dict[str, dict] = field(default_factory=dict)
+
+    @property
+    def new_findings(self) -> int:
+        return sum(c["findings"] for c in self.curves.values())
+
+
+def run_checks(cfg: Config, curve: str | None = None, first: object = None, last: object = None,
+               all_days: bool = False) -> CheckSummary:
+    """Check the chosen curves (all by default) and record their findings; returns counts per curve."""
+    summary = CheckSummary()
+    names = [curve] if curve else list(cfg.curves)
+    with writer(cfg.store_path) as con:
+        for name in names:
+            c = cfg.curve(name)
+            now = utc_now()
+            last_run = fetch_value(con, "SELECT max(ran_at) FROM check_run WHERE curve = ?", [name])
+            panel = read_quote_panel(con, name, list(c.tenor_labels), None, last)
+            in_window = np.ones(len(panel), dtype=bool)
+            if first is not None:
+                in_window &= panel.as_of >= np.datetime64(str(first), "D")
+            todo = in_window.copy()
+            if not all_days and last_run is not None:
+                todo &= panel.recorded_at > np.datetime64(last_run, "us")
+            if not todo.any():
+                summary.curves[name] = {"days_checked": 0, "findings": 0, "first_day": None, "last_day": None}
+                _close_restated(con, name, now)
+                continue
+            start = int(np.flatnonzero(todo)[0])
+            lo = max(0, start - CONTEXT_DAYS)
+            previous = (panel.as_of[lo:start], panel.rates[lo:start]) if start > lo else None
+            rng = slice(start, len(panel))
+            found = curve_checks(panel.as_of[rng], panel.tenors, panel.rates[rng], c, previous=previous)
+            episodes = inversion_episodes(panel.as_of, panel.tenors, panel.rates, c)
+            # findings from this run cover days after the last context day (missing days included)
+            bound = panel.as_of[start - 1] + np.timedelta64(1, "D") if start > 0 else panel.as_of[0]
+            con.execute("BEGIN TRANSACTION")
+            try:
+                con.execute(
+                    "UPDATE finding SET resolved_at = ?, resolution = 're-checked' "
+                    f"WHERE curve = ? AND as_of >= ? AND resolved_at IS NULL AND load_id IS NULL "
+                    f"AND check_name IN ({', '.join(repr(x) for x in CURVE_LEVEL_CHECKS)})",
+                    [now, name, str(bound)],
+                )
+                if len(found):
+                    rows = pd.DataFrame({  # noqa: F841
+                        "curve": name, "as_of": found["as_of"].to_numpy().astype("datetime64[D]"),
+                        "check_name": found["check_name"].astype(str), "severity": found["severity"].astype(str),
+                        "tenor": found["tenor"].astype(object), "detail": found["detail"].astype(str),
+                    })
+                    con.execute("INSERT INTO finding SELECT curve, as_of, check_name, severity, tenor, detail, ?, "
+                                "NULL, NULL, NULL FROM rows", [now])
+                con.execute("DELETE FROM inversion_episode WHERE curve = ?", [name])
+                if len(episodes):
+                    cols = ["curve", "short_tenor", "long_tenor", "first_day", "last_day", "days", "deepest_bp"]
+                    ep = episodes.assign(curve=name)[cols]  # noqa: F841 - read by DuckDB by its name
+                    con.execute("INSERT INTO inversion_episode SELECT * FROM ep")
+                _close_restated(con, name, now)
+                con.execute("INSERT INTO check_run VALUES (?, ?, ?, ?, ?, ?, ?)",
+                            [name, now, str(panel.as_of[start]), str(panel.as_of[-1]), len(panel) - start,
+                             len(found), bool(all_days)])
+                con.execute("COMMIT")
+            except BaseException:
+                con.execute("ROLLBACK")
+                raise
+            summary.curves[name] = {"days_checked": len(panel) - start, "findings": len(found),
+                                    "first_day": str(panel.as_of[start]), "last_day": str(panel.as_of[-1])}
+    return summary
+
+
+def _close_restated(con, curve: str, now) -> None:  # noqa: ANN001
+    """Close load-time findings whose (day, tenor) has since received a new quote version."""
+    con.execute(
+        """
+        UPDATE finding AS f SET resolved_at = ?, resolution = 'restated'
+        WHERE f.curve = ? AND f.load_id IS NOT NULL AND f.resolved_at IS NULL
+          AND EXISTS (SELECT 1 FROM quote_version q
+                      WHERE q.curve = f.curve AND q.as_of = f.as_of AND (f.tenor IS NULL OR q.tenor = f.tenor)
+                        AND q.recorded_at > f.found_at)
+        """,
+        [now, curve],
+    )
+
+
+def accept_day(cfg: Config, curve: str, day: str, note: str | None = None) -> int:
+    """Override the reject findings of one day (recorded with who and when); returns how many it covers."""
+    cfg.curve(curve)
+    with writer(cfg.store_path) as con:
+        n = fetch_value(
+            con, "SELECT count(*) FROM open_findings WHERE curve = ? AND as_of = CAST(? AS DATE) "
+            "AND severity = 'reject'", [curve, day],
+        )
+        try:
+            who = getpass.getuser()
+        except Exception:  # no user name in some containers
+            who = "unknown"
+        con.execute("INSERT INTO acceptance VALUES (?, CAST(? AS DATE), ?, ?, ?)", [curve, day, who, utc_now(), note])
+        row = fetch_one(con, "SELECT count(*) FROM held_days WHERE curve = ? AND as_of = CAST(? AS DATE)",
+                        [curve, day])
+        assert row is not None
+    return int(n or 0)
