@@ -33,9 +33,9 @@ class _Exit(Exception):
 
 
 def _console(stderr: bool = False):  # noqa: ANN202
-    from rich.console import Console
-
     import sys as _sys
+
+    from rich.console import Console
 
     stream = _sys.stderr if stderr else _sys.stdout
     # wide output when piped or captured, so tables are not squeezed into 80 columns

@@ -251,6 +251,10 @@ def _xlsx_grid(data: bytes, limits: ReadLimits) -> _Grid | str:
 
 
 # --- parsing text cells ------------------------------------------------------------------------
+#
+# Rate files are small and many (a month of one curve is a few hundred cells), so parsing is one
+# plain pass over the cells with a per-file cache of date strings: per-column pandas string
+# operations cost more in call overhead than the whole file takes this way.
 
 _FORMATS = {
     "iso": ("%Y-%m-%d", "%Y/%m/%d", "%Y%m%d"),
@@ -259,37 +263,54 @@ _FORMATS = {
 }
 
 
+class _DateParser:
+    """Date text to ``datetime64[D]`` (or ``None``); ISO forms always, day-/month-first if configured."""
+
+    def __init__(self, date_format: str) -> None:
+        self.formats = _FORMATS["iso"] + (_FORMATS[date_format] if date_format != "iso" else ())
+        self.cache: dict[str, np.datetime64 | None] = {}
+
+    def __call__(self, text: str) -> np.datetime64 | None:
+        try:
+            return self.cache[text]
+        except KeyError:
+            pass
+        from datetime import datetime
+
+        value = None
+        t = text.strip()
+        if "T" in t[10:11] or " " in t[10:11]:
+            t = t[:10]           # a timestamp at midnight from a spreadsheet or Parquet file
+        for fmt in self.formats:
+            try:
+                value = np.datetime64(datetime.strptime(t, fmt).date(), "D")
+                break
+            except ValueError:
+                continue
+        if len(self.cache) < 100_000:
+            self.cache[text] = value
+        return value
+
+
 def parse_dates(text: pd.Series, date_format: str) -> pd.Series:
-    """Parse date text; ISO forms are always accepted, day-/month-first only when configured.
-
-    Returns ``datetime64`` with ``NaT`` where a cell is not a real date (2031-02-30 is not)."""
-    s = text.astype(str).str.strip().str.slice(0, 10)
-    formats = _FORMATS["iso"] + (_FORMATS[date_format] if date_format != "iso" else ())
-    out = pd.Series(pd.NaT, index=s.index, dtype="datetime64[s]")
-    for fmt in formats:
-        todo = out.isna()
-        if not todo.any():
-            break
-        parsed = pd.to_datetime(s[todo], format=fmt, errors="coerce")
-        out.loc[todo] = parsed.astype("datetime64[s]")
-    return out
+    """Parse a Series of date text; ``NaT`` where a cell is not a real date (2031-02-30 is not)."""
+    parse = _DateParser(date_format)
+    values = [parse(str(t)) for t in text]
+    return pd.Series(np.array([v if v is not None else np.datetime64("NaT") for v in values],
+                              dtype="datetime64[D]"), index=text.index).astype("datetime64[s]")
 
 
-def _parse_values(text: pd.Series, decimal_comma: bool) -> tuple[np.ndarray, np.ndarray]:
-    """Numbers from text cells: (values, reason-or-empty). Rejects NaN, inf, thousands separators."""
-    s = text.str.strip().str.replace("%", "", regex=False).str.strip()
-    if decimal_comma:
-        comma = s.str.match(_DECIMAL_COMMA)
-        s = s.where(~comma, s.str.replace(",", ".", regex=False))
-    ok = s.str.match(_NUMBER).fillna(False).to_numpy(dtype=bool, copy=True)
-    values = np.full(len(s), np.nan)
-    if ok.any():
-        values[ok] = pd.to_numeric(s[ok], errors="coerce").to_numpy(dtype=float)
-    finite = np.isfinite(values)
-    ok = ok & finite
-    reasons = np.where(ok, "", "unparseable: rate " + text.str.slice(0, 40).map(repr).to_numpy(dtype=object)
-                       + " is not a finite number")
-    return values, reasons
+def _parse_number(cell: str, decimal_comma: bool) -> float | str:
+    """A finite number from a text cell, or the reason it is not one (a string)."""
+    t = cell.strip().rstrip("%").strip()
+    if decimal_comma and _DECIMAL_COMMA.match(t):
+        t = t.replace(",", ".")
+    if not _NUMBER.match(t):
+        return f"unparseable: rate {cell[:40]!r} is not a finite number"
+    v = float(t)
+    if not math.isfinite(v):
+        return f"unparseable: rate {cell[:40]!r} is not a finite number"
+    return v
 
 
 def _tenor_labels(names: list[str]) -> tuple[list[str | None], list[str]]:
@@ -302,6 +323,51 @@ def _tenor_labels(names: list[str]) -> tuple[list[str | None], list[str]]:
             labels.append(None)
             bad.append(n)
     return labels, bad
+
+
+class _Collector:
+    """Accumulates accepted quotes and rejected rows as plain lists, framed once at the end."""
+
+    def __init__(self) -> None:
+        self.line: list[int] = []
+        self.as_of: list[np.datetime64] = []
+        self.tenor: list[str] = []
+        self.value: list[float] = []
+        self.curve: list[str | None] = []
+        self.raw: list[str] = []
+        self.rej: list[tuple[int, str, str]] = []
+
+    def accept(self, line: int, as_of: np.datetime64, tenor: str, value: float, curve: str | None,
+               raw: str) -> None:
+        self.line.append(line)
+        self.as_of.append(as_of)
+        self.tenor.append(tenor)
+        self.value.append(value)
+        self.curve.append(curve)
+        self.raw.append(raw)
+
+    def reject(self, line: int, raw: str, reason: str) -> None:
+        self.rej.append((line, raw, reason))
+
+    def result(self, layout: str, header: list[str]) -> ReadResult:
+        if self.line:
+            rows = pd.DataFrame({
+                "line": np.asarray(self.line, dtype=np.int64),
+                "as_of": np.asarray(self.as_of, dtype="datetime64[D]").astype("datetime64[s]"),
+                "tenor": pd.Series(self.tenor, dtype=object),
+                "value": np.asarray(self.value, dtype=float),
+                "curve": pd.Series(self.curve, dtype=object),
+                "raw": pd.Series(self.raw, dtype=object),
+            })
+        else:
+            rows = _empty_rows()
+        if self.rej:
+            line, raw, reason = zip(*self.rej, strict=True)
+            rejected = pd.DataFrame({"line": np.asarray(line, dtype=np.int64), "raw": pd.Series(raw, dtype=object),
+                                     "reason": pd.Series(reason, dtype=object)})
+        else:
+            rejected = _empty_rejected()
+        return ReadResult(rows, rejected, layout, None, header)
 
 
 def _wide(grid: _Grid, date_format: str) -> ReadResult:
@@ -327,62 +393,37 @@ def _wide(grid: _Grid, date_format: str) -> ReadResult:
         return _refuse(f"no column of the header is a tenor label ({shown}...)")
 
     n_cols = len(header)
-    widths = np.fromiter((len(r) for r in grid.records), dtype=np.int64, count=len(grid.records))
-    too_long = np.fromiter((r[:1] == ["\x00too-long"] for r in grid.records), dtype=bool,
-                           count=len(grid.records))
-    padded = [r + [""] * (n_cols - len(r)) if len(r) < n_cols else r[:n_cols] for r in grid.records]
-    cells = pd.DataFrame(padded, columns=range(n_cols), dtype=object) if padded else pd.DataFrame(
-        columns=range(n_cols), dtype=object)
-    lines = np.asarray(grid.lines, dtype=np.int64)
-    raws = np.asarray(grid.raws, dtype=object)
-
-    dates = parse_dates(cells[date_col].fillna(""), date_format) if len(cells) else pd.Series(
-        [], dtype="datetime64[s]")
-    # a record with more fields than the header is garbled, not a set of quotes
-    line_bad = np.where(too_long, "unparseable: a field is longer than the reader accepts", "")
-    line_bad = np.where((line_bad == "") & (widths > n_cols),
-                        "unparseable: " + pd.Series(widths).astype(str).to_numpy(dtype=object)
-                        + f" fields where the header has {n_cols}", line_bad)
-    date_text = cells[date_col].fillna("").astype(str).str.strip() if len(cells) else pd.Series([], dtype=str)
-    line_bad = np.where((line_bad == "") & dates.isna().to_numpy(),
-                        "unparseable: date " + date_text.str.slice(0, 30).map(repr).to_numpy(dtype=object)
-                        + " is not a valid date", line_bad)
-    line_rejected = line_bad != ""
-
-    rows_parts, rej_parts = [], []
-    if line_rejected.any():
-        rej_parts.append(pd.DataFrame({"line": lines[line_rejected], "raw": raws[line_rejected],
-                                       "reason": line_bad[line_rejected]}))
-    keep = ~line_rejected
-    for i, lab in zip(tenor_cols, labels, strict=True):
-        col = cells[i].fillna("").astype(str)
-        present = keep & (col.str.strip() != "").to_numpy()
-        if not present.any():
+    columns = list(zip(tenor_cols, labels, strict=True))
+    parse_date = _DateParser(date_format)
+    out = _Collector()
+    for record, line, raw in zip(grid.records, grid.lines, grid.raws, strict=True):
+        if record[:1] == ["\x00too-long"]:
+            out.reject(line, raw, "unparseable: a field is longer than the reader accepts")
             continue
-        if lab is None:
-            rej_parts.append(pd.DataFrame({"line": lines[present], "raw": raws[present],
-                                           "reason": f"unparseable: column {header[i]!r} is not a tenor label"}))
+        if len(record) > n_cols:
+            out.reject(line, raw, f"unparseable: {len(record)} fields where the header has {n_cols}")
             continue
-        values, reasons = _parse_values(col[present], grid.decimal_comma)
-        good = reasons == ""
-        idx = np.flatnonzero(present)
-        if (~good).any():
-            rej_parts.append(pd.DataFrame({"line": lines[idx[~good]], "raw": raws[idx[~good]],
-                                           "reason": [f"{r} (tenor {lab})" for r in reasons[~good]]}))
-        if good.any():
-            rows_parts.append(pd.DataFrame({
-                "line": lines[idx[good]],
-                "as_of": dates.to_numpy()[idx[good]],
-                "tenor": lab,
-                "value": values[good],
-                "curve": None,
-                "raw": raws[idx[good]],
-            }))
-    rows = pd.concat(rows_parts, ignore_index=True) if rows_parts else _empty_rows()
-    rejected = pd.concat(rej_parts, ignore_index=True) if rej_parts else _empty_rejected()
-    rows = rows.sort_values(["line", "tenor"], kind="stable").reset_index(drop=True)
-    rejected = rejected.sort_values("line", kind="stable").reset_index(drop=True)
-    return ReadResult(rows[_ROW_COLUMNS], rejected[_REJECT_COLUMNS], "wide", None, header)
+        day = parse_date(record[date_col]) if date_col < len(record) else None
+        if day is None:
+            text = record[date_col].strip() if date_col < len(record) else ""
+            out.reject(line, raw, f"unparseable: date {text[:30]!r} is not a valid date")
+            continue
+        width = len(record)
+        for i, lab in columns:
+            if i >= width:
+                continue
+            cell = record[i]
+            if not cell or not cell.strip():
+                continue
+            if lab is None:
+                out.reject(line, raw, f"unparseable: column {header[i]!r} is not a tenor label")
+                continue
+            v = _parse_number(cell, grid.decimal_comma)
+            if isinstance(v, str):
+                out.reject(line, raw, f"{v} (tenor {lab})")
+            else:
+                out.accept(line, day, lab, v, None, raw)
+    return out.result("wide", header)
 
 
 def _long(grid: _Grid, date_format: str) -> ReadResult:
@@ -397,54 +438,44 @@ def _long(grid: _Grid, date_format: str) -> ReadResult:
     extra = [h for h in grid.header if h.lower() not in known and h]
     if extra:
         return _refuse(f"unexpected column {extra[0]!r} in a long-layout file (date, tenor, rate, curve)")
-    ci = {name: lowered.index(name) for name in ("tenor", "rate", "curve") if name in lowered}
-    ci["date"] = date_cols[0]
+    i_date, i_tenor, i_rate = date_cols[0], lowered.index("tenor"), lowered.index("rate")
+    i_curve = lowered.index("curve") if "curve" in lowered else None
     n_cols = len(grid.header)
-    padded = [r + [""] * (n_cols - len(r)) if len(r) < n_cols else r for r in grid.records]
-    widths = np.fromiter((len(r) for r in grid.records), dtype=np.int64, count=len(grid.records))
-    cells = pd.DataFrame([r[:n_cols] for r in padded], columns=range(n_cols), dtype=object)
-    lines = np.asarray(grid.lines, dtype=np.int64)
-    raws = np.asarray(grid.raws, dtype=object)
-    if not len(cells):
-        return ReadResult(_empty_rows(), _empty_rejected(), "long", None, grid.header)
-
-    rate_text = cells[ci["rate"]].fillna("").astype(str)
-    present = (rate_text.str.strip() != "").to_numpy()
-    dates = parse_dates(cells[ci["date"]].fillna(""), date_format)
-    tenor_text = cells[ci["tenor"]].fillna("").astype(str)
-    uniq = {t: None for t in tenor_text.unique()}
-    for t in uniq:
-        try:
-            uniq[t] = parse_tenor(t).label
-        except TenorError:
-            uniq[t] = None
-    tenors = tenor_text.map(uniq).to_numpy(dtype=object)
-    values, value_reason = _parse_values(rate_text, grid.decimal_comma)
-
-    reason = np.full(len(cells), "", dtype=object)
-    reason = np.where(widths > n_cols, "unparseable: more fields than the header", reason)
-    reason = np.where((reason == "") & dates.isna().to_numpy(), "unparseable: date "
-                      + cells[ci["date"]].fillna("").astype(str).str.slice(0, 30).map(repr).to_numpy(dtype=object)
-                      + " is not a valid date", reason)
-    reason = np.where((reason == "") & pd.isna(tenors), "unparseable: tenor "
-                      + tenor_text.str.slice(0, 30).map(repr).to_numpy(dtype=object) + " is not a tenor label", reason)
-    reason = np.where((reason == "") & present & (value_reason != ""), value_reason, reason)
-    # an empty rate is a missing quote (not a row) unless the line is garbled otherwise
-    counted = present | (reason != "")
-    bad = counted & (reason != "")
-    good = counted & ~bad
-    curve = cells[ci["curve"]].fillna("").astype(str).str.strip().replace("", None) if "curve" in ci else None
-    rows = pd.DataFrame({
-        "line": lines[good],
-        "as_of": dates.to_numpy()[good],
-        "tenor": tenors[good],
-        "value": values[good],
-        "curve": curve.to_numpy(dtype=object)[good] if curve is not None else None,
-        "raw": raws[good],
-    })
-    rejected = pd.DataFrame({"line": lines[bad], "raw": raws[bad], "reason": reason[bad]})
-    return ReadResult(rows[_ROW_COLUMNS] if len(rows) else _empty_rows(),
-                      rejected if len(rejected) else _empty_rejected(), "long", None, grid.header)
+    parse_date = _DateParser(date_format)
+    tenor_cache: dict[str, str | None] = {}
+    out = _Collector()
+    for record, line, raw in zip(grid.records, grid.lines, grid.raws, strict=True):
+        if record[:1] == ["\x00too-long"]:
+            out.reject(line, raw, "unparseable: a field is longer than the reader accepts")
+            continue
+        if len(record) > n_cols:
+            out.reject(line, raw, "unparseable: more fields than the header")
+            continue
+        cells = record + [""] * (n_cols - len(record))
+        rate_text = cells[i_rate]
+        day = parse_date(cells[i_date])
+        if day is None:
+            out.reject(line, raw, f"unparseable: date {cells[i_date].strip()[:30]!r} is not a valid date")
+            continue
+        t = cells[i_tenor]
+        if t not in tenor_cache:
+            try:
+                tenor_cache[t] = parse_tenor(t).label
+            except TenorError:
+                tenor_cache[t] = None
+        tenor = tenor_cache[t]
+        if tenor is None:
+            out.reject(line, raw, f"unparseable: tenor {t.strip()[:30]!r} is not a tenor label")
+            continue
+        if not rate_text.strip():
+            continue        # an empty rate is a missing quote, not a row
+        v = _parse_number(rate_text, grid.decimal_comma)
+        if isinstance(v, str):
+            out.reject(line, raw, v)
+            continue
+        curve = cells[i_curve].strip() or None if i_curve is not None else None
+        out.accept(line, day, tenor, v, curve, raw)
+    return out.result("long", grid.header)
 
 
 def sniff_format(data: bytes, name: str) -> str:
