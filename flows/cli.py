@@ -305,6 +305,79 @@ def audit(
     print_audit(results, fmt, _console(), s_months, t_months)
 
 
+@app.command()
+def report(
+    out: Annotated[Path | None, typer.Option("--out", help="Folder for the report (default: reports/ beside "
+                                             "the config).")] = None,
+    curve: Annotated[str | None, typer.Option("--curve", help="Only this curve.")] = None,
+    first: Annotated[str | None, typer.Option("--from", help="First as-of date (YYYY-MM-DD).")] = None,
+    last: Annotated[str | None, typer.Option("--to", help="Last as-of date (YYYY-MM-DD).")] = None,
+) -> None:
+    """Write a self-contained HTML audit report and print its path."""
+    from flows.report_step import write_report
+
+    cfg = _config()
+    if curve is not None:
+        cfg.curve(curve)
+    path = write_report(cfg, out, curve, _day(first, "--from"), _day(last, "--to"))
+    _console().print(str(path))
+
+
+@app.command()
+def run() -> None:
+    """The daily job as one Prefect flow: load the inbox, check, build, realize, audit."""
+    from flows.jobs import cli_run
+
+    raise typer.Exit(cli_run(_config_path(), _console()))
+
+
+@app.command()
+def backfill(
+    first: Annotated[str, typer.Option("--from", help="First as-of date (YYYY-MM-DD).")],
+    last: Annotated[str, typer.Option("--to", help="Last as-of date (YYYY-MM-DD).")],
+    workers: Annotated[int, typer.Option("--workers", help="Parallel workers (a local Dask cluster if > 1).")] = 1,
+    scheduler: Annotated[str | None, typer.Option("--scheduler", help="Address of an existing Dask scheduler.")
+                         ] = None,
+) -> None:
+    """Build and realise a range of dates in parallel chunks, with a progress bar."""
+    from flows.jobs import cli_backfill
+
+    if workers < 1:
+        raise _Exit("--workers must be at least 1", 2)
+    raise typer.Exit(cli_backfill(_config_path(), _day(first, "--from"), _day(last, "--to"), workers, scheduler,
+                                  _console()))
+
+
+@app.command()
+def serve(
+    cron: Annotated[str | None, typer.Option("--cron", help="Cron expression (default from the config: weekdays "
+                                             "18:30).")] = None,
+) -> None:
+    """Serve the daily job on a schedule through Prefect."""
+    from flows.jobs import cli_serve
+
+    raise typer.Exit(cli_serve(_config_path(), cron, _console()))
+
+
+@app.command()
+def export(
+    to: Annotated[Path, typer.Option("--to", help="Folder for the Parquet files.")],
+) -> None:
+    """Write the views as Parquet, partitioned by curve and year."""
+    from flows.export_step import export_views
+
+    cfg = _config()
+    written = export_views(cfg, to)
+    _console().print(f"wrote {len(written)} view(s) under {to}")
+
+
+def _config_path() -> Path:
+    from pipeline.config import find_config
+
+    cfg = _config()  # validates, so a bad config fails here with its one-line message
+    return Path(cfg.path) if cfg.path else find_config(_state["config"])  # type: ignore[arg-type]
+
+
 def _progress(console):  # noqa: ANN001, ANN202
     from rich.progress import BarColumn, MofNCompleteColumn, Progress, TextColumn, TimeElapsedColumn
 
