@@ -1,4 +1,8 @@
-"""``afterward demo``: the invented market, generated, loaded and carried through the whole job."""
+"""``afterward demo``: the invented market, generated, loaded and carried through the whole job.
+
+The demo calls the same steps as the commands (load, check, build, realize, audit, report), without
+Prefect, so it starts quickly and shows each stage's result as it goes.
+"""
 
 from __future__ import annotations
 
@@ -24,9 +28,14 @@ def make_demo_folder(directory: Path) -> Path:
 def run_demo(directory: Path, console) -> None:  # noqa: ANN001
     from rich.progress import BarColumn, MofNCompleteColumn, Progress, TextColumn, TimeElapsedColumn
 
+    from flows.audit_step import run_audit
+    from flows.build_step import run_build
+    from flows.check_step import run_checks
+    from flows.realize_step import run_realize
+    from flows.report_step import write_report
     from flows.steps import load_files
 
-    console.print(f"writing the invented demo market into {directory} ...")
+    console.print(f"writing the invented demo market (the Republic of Orvane, 30 years) into {directory} ...")
     config_path = make_demo_folder(directory)
     cfg = load_config(config_path)
     files = sorted(p for p in cfg.inbox.iterdir() if p.is_file())
@@ -43,9 +52,34 @@ def run_demo(directory: Path, console) -> None:  # noqa: ANN001
             progress.advance(task)
 
         load_files(cfg, files, on_file=on_file)
-    console.print(
-        f"loaded {totals['loaded']} files ({totals['already loaded']} already loaded, {totals['refused']} refused): "
-        f"{totals['rows']:,} quotes accepted, {totals['revised']} revised, {totals['rejected']} rows rejected"
-    )
+
+        console.print(
+            f"load: {totals['loaded']} files ({totals['already loaded']} already loaded, {totals['refused']} "
+            f"refused): {totals['rows']:,} quotes accepted, {totals['revised']} revised, "
+            f"{totals['rejected']} rows rejected"
+        )
+        checked = run_checks(cfg)
+        counts = ", ".join(f"{n}: {c['findings']:,}" for n, c in checked.curves.items())
+        console.print(f"check: {checked.new_findings:,} findings ({counts}); "
+                      "see 'afterward check' or the findings view")
+        build_task = progress.add_task("building curves", total=None)
+
+        def on_progress(name: str, done: int, total: int) -> None:
+            progress.update(build_task, description=f"building {name}", completed=done, total=total)
+
+        built = run_build(cfg, on_progress=on_progress)
+        progress.update(build_task, visible=False)
+        held = sum(c["held"] for c in built.curves.values())
+        console.print(f"build: {built.days_built:,} curve-days, {built.forwards_built:,} forwards "
+                      f"({held} day(s) held back by reject findings)")
+        realized = run_realize(cfg)
+        pending = sum(c["pending"] for c in realized.curves.values())
+        console.print(f"realize: {realized.realized:,} outcomes; {pending:,} forwards still pending")
+        audited = run_audit(cfg)
+        rows = sum(len(f) for f in audited.values())
+        console.print(f"audit: {rows} horizon x regime rows in audit_summary; see 'afterward audit'")
+        report = write_report(cfg, None, None, None, None)
     console.print(f"config: {config_path}")
     console.print(f"store:  {cfg.store_path}")
+    console.print(f"report: {report}")
+    console.print("try:    afterward --config " + str(config_path) + " audit --curve govt --start 1Y")
