@@ -84,7 +84,8 @@ def run_checks(cfg: Config, curve: str | None = None, first: object = None, last
                 con.execute("DELETE FROM inversion_episode WHERE curve = ?", [name])
                 if len(episodes):
                     cols = ["curve", "short_tenor", "long_tenor", "first_day", "last_day", "days", "deepest_bp"]
-                    ep = episodes.assign(curve=name)[cols]  # noqa: F841 - read by DuckDB by its name
+                    # spreads are differences of quoted decimals: round off the float noise (1e-6 bp)
+                    ep = episodes.assign(curve=name, deepest_bp=episodes["deepest_bp"].round(6))[cols]  # noqa: F841
                     con.execute("INSERT INTO inversion_episode SELECT * FROM ep")
                 _close_restated(con, name, now)
                 con.execute("INSERT INTO check_run VALUES (?, ?, ?, ?, ?, ?, ?)",
