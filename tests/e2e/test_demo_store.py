@@ -236,7 +236,8 @@ def test_inversion_episodes_match_a_plain_pandas_computation(demo_checked, curve
     assert list(got["first_day"]) == list(mine["first_day"])
     assert list(got["last_day"]) == list(mine["last_day"])
     assert list(got["days"]) == list(mine["days"])
-    np.testing.assert_allclose(got["deepest_bp"], mine["deepest_bp"], rtol=0, atol=1e-9)
+    # the store keeps depths rounded to 1e-6 bp
+    np.testing.assert_allclose(got["deepest_bp"], mine["deepest_bp"], rtol=0, atol=1e-6)
 
 
 # --------------------------------------------------------------------------- issue 3/4: held, accept
@@ -326,3 +327,12 @@ def test_audit_figures_equal_statsmodels_on_the_stored_outcomes(demo_done):
     assert row["mz_beta"] == pytest.approx(mz.params[1], rel=1e-8)
     wald = mz.wald_test((np.eye(2), np.array([0.0, 1.0])), use_f=False, scalar=True)
     assert row["mz_pvalue"] == pytest.approx(float(wald.pvalue), rel=1e-6, abs=1e-300)
+
+
+def test_a_held_day_counts_as_not_observed(demo_done):
+    """Forwards targeting the units-error day are realised on the next observed day (tolerance rule),
+    never on the held day's quotes."""
+    units = _defect(demo_done, "wrong_units").date
+    o = demo_done.sql("SELECT DISTINCT observed_on FROM outcomes WHERE curve = 'govt' AND target_date = ?", [units])
+    assert len(o) == 1 and o.iloc[0, 0] == units + dt.timedelta(days=1)
+    assert demo_done.value("SELECT count(*) FROM outcomes WHERE curve = 'govt' AND observed_on = ?", [units]) == 0

@@ -177,3 +177,34 @@ def test_restating_a_realised_day_re_derives_its_outcomes_and_keeps_the_old(flat
     # and the quotes as they were known then still show the first publication
     q = p.value("SELECT rate FROM quotes_as_of(?) WHERE as_of = ? AND tenor = '1Y'", [stood, str(day)])
     assert q == pytest.approx(float(levels.loc[pd.Timestamp(day)]), abs=1e-15)
+
+
+def test_a_day_restated_into_a_reject_is_withdrawn_and_its_outcomes_move(flat, tmp_path):
+    """A restatement that makes a realised day fail a reject check (a 3 % jump) takes the day out of
+    build; outcomes observed on it move to the next observed day, and its own forwards leave the
+    surface and the running record (superseded, kept)."""
+    p = clone_project(flat[0], tmp_path / "withdrawn")
+    levels = flat[1]
+    day = np.datetime64("2030-06-14")
+    nxt = np.datetime64("2030-06-17")
+    before = p.sql("SELECT * FROM outcomes")
+    own = before[as_days(before["as_of"]) == day]
+    on_day = before[(as_days(before["observed_on"]) == day) & (as_days(before["as_of"]) != day)]
+    assert len(on_day) and len(own)
+    f = write_wide_csv(p.root / "flat_bad_2030-06-14.csv", [day], FLAT_TENORS,
+                       np.full((1, len(FLAT_TENORS)), float(levels.loc[pd.Timestamp(day)]) + 0.03), "%.10f")
+    load_files(p.cfg, [f])
+    run_checks(p.cfg)
+    assert p.value("SELECT count(*) FROM held_days WHERE as_of = ?", [str(day)]) == 1
+    s = run_build(p.cfg)
+    assert s.curves["flat"]["withdrawn"] == 1
+    assert p.value("SELECT count(*) FROM forwards WHERE as_of = ?", [str(day)]) == 0
+    run_realize(p.cfg)
+    after = p.sql("SELECT * FROM outcomes")
+    assert (as_days(after["observed_on"]) != day).all()
+    assert (as_days(after["as_of"]) != day).all()
+    moved = after.merge(on_day[KEY], on=KEY)
+    assert len(moved) == len(on_day) and (as_days(moved["observed_on"]) == nxt).all()
+    np.testing.assert_allclose(moved["realized_rate"], float(levels.loc[pd.Timestamp(nxt)]), rtol=0, atol=1e-13)
+    kept = p.value("SELECT count(*) FROM outcome WHERE superseded_at IS NOT NULL")
+    assert kept == len(on_day) + len(own)
