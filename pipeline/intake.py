@@ -39,8 +39,15 @@ class Intake:
     validations: list[dict] = field(default_factory=list)
 
 
+_EMPTY: dict[tuple[str, ...], pd.DataFrame] = {}
+
+
 def _empty(columns: list[str]) -> pd.DataFrame:
-    return pd.DataFrame({c: pd.Series([], dtype=object) for c in columns})
+    # building an empty frame costs about a millisecond; most files have no rejected rows
+    key = tuple(columns)
+    if key not in _EMPTY:
+        _EMPTY[key] = pd.DataFrame({c: pd.Series([], dtype=object) for c in columns})
+    return _EMPTY[key].copy()
 
 
 def route_curve(cfg: Config, file_name: str, explicit: str | None = None) -> str | None:

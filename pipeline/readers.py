@@ -80,7 +80,26 @@ def to_decimal(values: np.ndarray, units: str) -> np.ndarray:
     return out if divisor == 1.0 else np.round(out, 14)
 
 
+_EMPTY_ROWS: pd.DataFrame | None = None
+_EMPTY_REJECTED: pd.DataFrame | None = None
+
+
 def _empty_rows() -> pd.DataFrame:
+    global _EMPTY_ROWS
+    if _EMPTY_ROWS is None:
+        _EMPTY_ROWS = _new_empty_rows()
+    return _EMPTY_ROWS.copy()
+
+
+def _empty_rejected() -> pd.DataFrame:
+    # most files have no rejected rows, and building an empty frame costs about a millisecond
+    global _EMPTY_REJECTED
+    if _EMPTY_REJECTED is None:
+        _EMPTY_REJECTED = _new_empty_rejected()
+    return _EMPTY_REJECTED.copy()
+
+
+def _new_empty_rows() -> pd.DataFrame:
     return pd.DataFrame(
         {
             "line": pd.Series([], dtype="int64"),
@@ -93,7 +112,7 @@ def _empty_rows() -> pd.DataFrame:
     )
 
 
-def _empty_rejected() -> pd.DataFrame:
+def _new_empty_rejected() -> pd.DataFrame:
     return pd.DataFrame(
         {"line": pd.Series([], dtype="int64"), "raw": pd.Series([], dtype="object"),
          "reason": pd.Series([], dtype="object")}

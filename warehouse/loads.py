@@ -126,17 +126,24 @@ class Loader:
         days = rows["as_of"].to_numpy(dtype="datetime64[D]").astype(np.int64).tolist()
         return list(zip(days, rows["tenor"].tolist(), strict=True))
 
+    @staticmethod
+    def _by_curve(rows: pd.DataFrame) -> dict[object, np.ndarray]:
+        names = rows["curve"].to_numpy(dtype=object)
+        if (names == names[0]).all():  # the usual case: a file of one curve
+            return {names[0]: np.arange(len(rows))}
+        return rows.groupby("curve", sort=False).indices
+
     def _classify(self, rows: pd.DataFrame) -> np.ndarray:
         """Each row's previous current rate (NaN where the key is new)."""
         old = np.full(len(rows), np.nan)
-        for curve, idx in rows.groupby("curve", sort=False).indices.items():
+        for curve, idx in self._by_curve(rows).items():
             state = self._curve_state(str(curve))
             if state:
                 old[idx] = [state.get(k, np.nan) for k in self._keys(rows.iloc[idx])]
         return old
 
     def _remember(self, rows: pd.DataFrame) -> None:
-        for curve, idx in rows.groupby("curve", sort=False).indices.items():
+        for curve, idx in self._by_curve(rows).items():
             part = rows.iloc[idx]
             self._curve_state(str(curve)).update(zip(self._keys(part), part["rate"].tolist(), strict=True))
 
