@@ -1,0 +1,570 @@
+"""The report as one HTML document: sections, tables, inline SVG charts and the embedded stylesheet.
+
+The page holds no script, loads no font, image or stylesheet from anywhere (a Content-Security-Policy
+in the page forbids it, so even a viewer that would follow a link cannot), and so opens the same
+offline and years later. Numbers are formatted for people: bp with one decimal, rates in percent,
+ISO dates.
+"""
+
+from __future__ import annotations
+
+import hashlib
+from collections.abc import Callable, Iterable, Sequence
+
+import pandas as pd
+
+from pipeline.report import charts
+from pipeline.report.fmt import (
+    MISSING,
+    esc,
+    fmt_bp,
+    fmt_count,
+    fmt_date,
+    fmt_num,
+    fmt_pct,
+    fmt_pvalue,
+    fmt_timestamp,
+    is_missing,
+    months_label,
+)
+from pipeline.report.model import CurveReport, ReportData
+from pipeline.report.style import STYLESHEET
+
+__all__ = ["CHECK_ORDER", "SECTIONS", "input_fingerprint", "render_report"]
+
+#: (anchor, heading) of the seven sections, in order
+SECTIONS = (
+    ("scope", "Scope and provenance"),
+    ("quality", "Data quality"),
+    ("history", "Curve history"),
+    ("forwards", "Forwards against what happened"),
+    ("errors", "Forecast error by horizon"),
+    ("premium", "Term premium over time"),
+    ("cautions", "Cautions"),
+)
+CHECK_ORDER = ("unparseable", "out_of_range", "duplicate", "missing_day", "missing_tenor", "stale_curve",
+               "jump", "inversion", "negative_forward", "non_monotone_discount")
+ROW_LIMIT = 25
+CSP = "default-src 'none'; style-src 'unsafe-inline'; img-src data:; base-uri 'none'; form-action 'none'"
+
+
+# ---- small HTML helpers ---------------------------------------------------------------------------
+
+class _Cell:
+    """A table cell: text (escaped unless ``raw``), right-aligned when ``numeric``."""
+
+    __slots__ = ("text", "numeric", "raw", "cls", "row_header")
+
+    def __init__(self, text: object, numeric: bool = False, raw: bool = False, cls: str = "",
+                 row_header: bool = False) -> None:
+        self.text, self.numeric, self.raw, self.cls, self.row_header = text, numeric, raw, cls, row_header
+
+    def html(self, tag: str = "td") -> str:
+        classes = " ".join(c for c in ("n" if self.numeric else "", self.cls) if c)
+        attr = f' class="{classes}"' if classes else ""
+        if self.row_header:
+            tag, attr = "th", attr + ' scope="row"'
+        body = str(self.text) if self.raw else esc(self.text)
+        return f"<{tag}{attr}>{body}</{tag}>"
+
+
+def _n(text: object) -> _Cell:
+    return _Cell(text, numeric=True)
+
+
+def _raw(html: str, numeric: bool = False) -> _Cell:
+    return _Cell(html, numeric=numeric, raw=True)
+
+
+def _table(headers: Sequence[str | _Cell], rows: Iterable[Sequence[object]], *, caption: str = "",
+           cls: str = "", total: int | None = None, shown_note: str = "") -> str:
+    head = "".join(h.html("th") if isinstance(h, _Cell) else f"<th>{esc(h)}</th>" for h in headers)
+    body_rows = []
+    count = 0
+    for r in rows:
+        count += 1
+        cells = "".join(c.html() if isinstance(c, _Cell) else _Cell(c).html() for c in r)
+        body_rows.append(f"<tr>{cells}</tr>")
+    cap = f"<caption>{esc(caption)}</caption>" if caption else ""
+    klass = f' class="{cls}"' if cls else ""
+    out = (f'<div class="table-wrap"><table{klass}>{cap}<thead><tr>{head}</tr></thead>'
+           f"<tbody>{''.join(body_rows)}</tbody></table></div>")
+    if total is not None and total > count:
+        out += f'<p class="more">{esc(shown_note or f"{count:,} of {total:,} rows shown.")}</p>'
+    return out
+
+
+def _nh(text: str) -> _Cell:
+    return _Cell(text, numeric=True)
+
+
+def _empty(text: str) -> str:
+    return f'<p class="empty">{esc(text)}</p>'
+
+
+def _note(text: str) -> str:
+    return f'<p class="note">{esc(text)}</p>'
+
+
+def _sev(severity: object) -> str:
+    s = esc(severity)
+    return f'<span class="sev sev-{s}">{s}</span>'
+
+
+def _figure(chart: charts.Chart | None, fig_id: str, empty_text: str) -> str:
+    if chart is None:
+        return _empty(empty_text)
+    return (f'<figure class="chart" id="{fig_id}">{chart.svg}'
+            f"<figcaption>{esc(chart.caption)}</figcaption></figure>")
+
+
+def _section(index: int, body: str) -> str:
+    anchor, heading = SECTIONS[index]
+    return (f'<section id="{anchor}"><h2><span class="secno">{index + 1}</span>{esc(heading)}</h2>'
+            f"{body}</section>")
+
+
+def _curve_heading(curve: CurveReport) -> str:
+    return f'<h3><span class="curve">Curve {esc(curve.name)}</span></h3>'
+
+
+def _rows(frame: pd.DataFrame, limit: int | None = None) -> Iterable[pd.Series]:
+    if frame is None or frame.empty:
+        return []
+    part = frame if limit is None else frame.head(limit)
+    return (r for _, r in part.iterrows())
+
+
+def input_fingerprint(sha256s: Iterable[str]) -> str:
+    """SHA-256 over the sorted, newline-joined SHA-256 digests of the input files.
+
+    One digest names the whole set of files: the same files give the same fingerprint, whatever
+    their names or load order.
+    """
+    joined = "\n".join(sorted(str(s) for s in sha256s))
+    return hashlib.sha256(joined.encode("ascii")).hexdigest()
+
+
+# ---- section 1: scope and provenance -----------------------------------------------------------
+
+def _scope(data: ReportData) -> str:
+    parts = ['<p class="intro">What this report covers, the conventions its numbers follow, and the files, '
+             "program and store they were computed from. Everything below can be recomputed from the files "
+             "listed here.</p>"]
+    curves = data.curves
+    parts.append("<h3>Curves and conventions</h3>")
+    labels: list[str] = []
+    for c in curves:
+        for label, _ in c.conventions:
+            if label not in labels:
+                labels.append(label)
+    rows: list[list[object]] = [
+        [_Cell("As-of dates shown", row_header=True)]
+        + [f"{fmt_date(c.first_day)} to {fmt_date(c.last_day)}" if not is_missing(c.first_day) else MISSING
+           for c in curves],
+        [_Cell("Days observed", row_header=True)] + [fmt_count(c.days_observed) for c in curves],
+    ]
+    for label in labels:
+        rows.append([_Cell(label, row_header=True)] + [dict(c.conventions).get(label, MISSING) for c in curves])
+    header = [_Cell("Setting")] + [_Cell(c.name) for c in curves]
+    parts.append(_table(header, rows, cls="settings"))
+    parts.append(_inputs(data))
+    parts.append(_builds(data))
+    window = data.window
+    window_text = ("all as-of dates in the store" if window == (None, None) else
+                   f"as-of dates from {window[0] or 'the first'} to {window[1] or 'the last'}")
+    parts.append("<h3>This report</h3>")
+    parts.append(
+        '<dl class="meta">'
+        f"<dt>Generated at</dt><dd>{esc(fmt_timestamp(data.generated_at))}</dd>"
+        f"<dt>Program</dt><dd>afterward {esc(data.program_version)}</dd>"
+        f"<dt>Store schema version</dt><dd>{esc(data.schema_version)}</dd>"
+        f'<dt>Store</dt><dd class="mono">{esc(data.store_path or MISSING)}</dd>'
+        f'<dt>Configuration</dt><dd class="mono">{esc(data.config_path or MISSING)}</dd>'
+        f"<dt>Window asked for</dt><dd>{esc(window_text)}</dd>"
+        "</dl>"
+    )
+    return _section(0, "".join(parts))
+
+
+def _inputs(data: ReportData) -> str:
+    loads = data.loads
+    out = ["<h3>Input files</h3>"]
+    if loads is None or loads.empty:
+        return "".join(out) + _empty("No file has been loaded for these curves.")
+    loads = loads.sort_values("load_id").reset_index(drop=True)
+    loaded = loads[loads["status"] == "loaded"]
+    out.append(f"<p>The figures rest on <strong>{len(loaded):,}</strong> loaded file(s), load ids "
+               f"{fmt_count(loaded['load_id'].min()) if len(loaded) else MISSING} to "
+               f"{fmt_count(loaded['load_id'].max()) if len(loaded) else MISSING}. Input fingerprint "
+               "(SHA-256 of the files' sorted SHA-256 digests): "
+               f'<span class="mono">{input_fingerprint(loaded["sha256"])}</span></p>')
+    rows = []
+    for curve, g in loads.groupby(loads["curve"].fillna("(not routed)").astype(str), sort=True):
+        ok = g[g["status"] == "loaded"]
+        rows.append([curve, _n(fmt_count(len(ok))), _n(fmt_count(len(g) - len(ok))),
+                     _n(fmt_count(ok["load_id"].min()) if len(ok) else MISSING),
+                     _n(fmt_count(ok["load_id"].max()) if len(ok) else MISSING),
+                     _n(fmt_timestamp(ok["started_at"].min(), seconds=False) if len(ok) else MISSING),
+                     _n(fmt_timestamp(ok["started_at"].max(), seconds=False) if len(ok) else MISSING),
+                     _n(fmt_count(ok["rows_read"].sum())), _n(fmt_count(ok["rows_accepted"].sum())),
+                     _n(fmt_count(ok["rows_revised"].sum())), _n(fmt_count(ok["rows_rejected"].sum()))])
+    out.append(_table(["Curve", _nh("Files"), _nh("Refused"), _nh("First load id"), _nh("Last load id"),
+                       _nh("First loaded"), _nh("Last loaded"), _nh("Rows read"), _nh("Accepted"),
+                       _nh("Revised"), _nh("Rejected")], rows))
+    notable = loads[(loads["status"] != "loaded") | (loads["rows_rejected"] > 0) | (loads["rows_revised"] > 0)]
+    if len(notable):
+        out.append("<h4>Files with rejected or revised rows, or refused</h4>")
+        out.append(_table(
+            [_nh("Load id"), "File", "Curve", "SHA-256 (first 16)", _nh("Read"), _nh("Accepted"), _nh("Revised"),
+             _nh("Rejected"), "Status"],
+            ([_n(fmt_count(r["load_id"])), r["file_name"], r["curve"] if not is_missing(r["curve"]) else MISSING,
+              _raw(f'<span class="mono">{esc(str(r["sha256"])[:16])}</span>'), _n(fmt_count(r["rows_read"])),
+              _n(fmt_count(r["rows_accepted"])), _n(fmt_count(r["rows_revised"])),
+              _n(fmt_count(r["rows_rejected"])),
+              r["status"] + ("" if is_missing(r.get("detail")) else f": {r['detail']}")]
+             for r in _rows(notable, ROW_LIMIT)),
+            total=len(notable)))
+    out.append(f"<details><summary>All {len(loads):,} files with their load ids and digests</summary>")
+    out.append(_table(
+        [_nh("Load id"), "File", "Curve", "Loaded at", "SHA-256", _nh("Rows"), "Status"],
+        ([_n(fmt_count(r["load_id"])), r["file_name"], r["curve"] if not is_missing(r["curve"]) else MISSING,
+          fmt_timestamp(r["started_at"]), _raw(f'<span class="mono">{esc(r["sha256"])}</span>'),
+          _n(fmt_count(r["rows_read"])), r["status"]] for r in _rows(loads))))
+    out.append("</details>")
+    return "".join(out)
+
+
+def _builds(data: ReportData) -> str:
+    out = ["<h3>Curves built and audit runs</h3>"]
+    b = data.builds
+    if b is None or b.empty:
+        out.append(_empty("No curve has been built yet (run 'afterward build')."))
+    else:
+        out.append(_table(["Curve", "Method", "Program version", _nh("Days built"), _nh("First"), _nh("Last")],
+                          ([r["curve"], r["method"], r["code_version"], _n(fmt_count(r["days"])),
+                            _n(fmt_date(r["first_day"])), _n(fmt_date(r["last_day"]))] for r in _rows(b))))
+    rows = []
+    for c in data.curves:
+        s = c.summary
+        if s is None or s.empty:
+            rows.append([c.name, MISSING, MISSING, MISSING, _n(fmt_count(c.pending))])
+            continue
+        first = s["window_from"].iloc[0] if "window_from" in s else None
+        last = s["window_to"].iloc[0] if "window_to" in s else None
+        window = ("all outcomes" if is_missing(first) and is_missing(last)
+                  else f"as-of {fmt_date(first) if not is_missing(first) else 'start'} to "
+                       f"{fmt_date(last) if not is_missing(last) else 'end'}")
+        rows.append([c.name, fmt_timestamp(s["computed_at"].max()) if "computed_at" in s else MISSING,
+                     fmt_timestamp(s["data_version"].max()) if "data_version" in s else MISSING, window,
+                     _n(fmt_count(c.pending))])
+    out.append(_table(["Curve", "Audit computed at", "Outcomes as of (data version)", "Audit window",
+                       _nh("Forwards still pending")], rows))
+    return "".join(out)
+
+
+# ---- section 2: data quality ----------------------------------------------------------------------
+
+def _quality(data: ReportData, first: object, last: object) -> str:
+    f = data.findings
+    parts = ['<p class="intro">Every finding the checks recorded and that is still open, every input row '
+             "that could not be used, the days missing from the record, and the periods when the curve was "
+             "inverted.</p>"]
+    if f is None or f.empty:
+        parts.append(_empty("No open findings."))
+    else:
+        by_sev = f["severity"].value_counts()
+        parts.append("<p>" + esc(f"{len(f):,} open finding(s): " + ", ".join(
+            f"{int(by_sev.get(s, 0)):,} {s}" for s in ("reject", "warn", "info"))) + ".</p>")
+        parts.append(_figure(charts.findings_chart(f, CHECK_ORDER, first, last, "fq"), "fig-findings",
+                             "No open findings."))
+    parts.append("<h3>Days held back: open reject findings</h3>")
+    held = data.held
+    if held is None or held.empty:
+        parts.append(_empty("No day is held back by an open reject finding."))
+    else:
+        held = held.sort_values(["curve", "as_of"])
+        parts.append(_table(["Curve", _nh("As-of date"), "Check", "Tenor", "Detail"],
+                            ([r["curve"], _n(fmt_date(r["as_of"])), r["check_name"],
+                              r["tenor"] if not is_missing(r["tenor"]) else MISSING, r["detail"]]
+                             for r in _rows(held, ROW_LIMIT)), total=len(held)))
+    parts.append("<h3>Rejected input rows</h3>")
+    rr = data.rejected_rows
+    if rr is None or rr.empty:
+        parts.append(_empty("No input row was rejected."))
+    else:
+        # a wide file's line carries one quote per tenor: the same line and reason repeat per quote
+        grouped = (rr.assign(raw=rr["raw"].fillna(""))
+                   .groupby(["load_id", "file_name", "line", "reason", "raw"], sort=True, dropna=False)
+                   .size().rename("quotes").reset_index())
+        parts.append(f"<p>{len(rr):,} rejected quote row(s) on {len(grouped):,} input line(s).</p>")
+        parts.append(_table(
+            [_nh("Load id"), "File", _nh("Line"), "Reason", _nh("Quotes"), "Input as received"],
+            ([_n(fmt_count(r["load_id"])), r["file_name"], _n(fmt_count(r["line"])), r["reason"],
+              _n(fmt_count(r["quotes"])),
+              _raw(f'<span class="mono">{esc(_clip(r["raw"], 72))}</span>')]
+             for r in _rows(grouped, ROW_LIMIT)), total=len(grouped)))
+    parts.append("<h3>Gaps: expected days with no curve</h3>")
+    gaps = f[f["check_name"] == "missing_day"] if f is not None and not f.empty else pd.DataFrame()
+    if gaps.empty:
+        parts.append(_empty("No expected observation day is missing."))
+    else:
+        gaps = gaps.sort_values(["curve", "as_of"])
+        parts.append(_table(["Curve", _nh("As-of date"), "Severity", "Detail"],
+                            ([r["curve"], _n(fmt_date(r["as_of"])), _raw(_sev(r["severity"])), r["detail"]]
+                             for r in _rows(gaps, ROW_LIMIT)), total=len(gaps)))
+    parts.append("<h3>Inversion episodes</h3>")
+    parts.append(_episodes(data.curves))
+    return _section(1, "".join(parts))
+
+
+def _clip(text: object, width: int) -> str:
+    s = "" if is_missing(text) else str(text)
+    return s if len(s) <= width else s[: width - 1] + "\u2026"
+
+
+def _episodes(curves: Sequence[CurveReport]) -> str:
+    frames = [c.episodes.assign(curve=c.name) for c in curves if c.episodes is not None and not c.episodes.empty]
+    if not frames:
+        return _empty("The curves were never inverted at the configured tenor pairs.")
+    e = pd.concat(frames, ignore_index=True)
+    out = []
+    summary = (e.groupby(["curve", "short_tenor", "long_tenor"], sort=True)
+               .agg(episodes=("days", "size"), days=("days", "sum"), deepest=("deepest_bp", "min"),
+                    first=("first_day", "min"), last=("last_day", "max")).reset_index())
+    out.append(_table(["Curve", "Pair", _nh("Episodes"), _nh("Inverted days"), _nh("Deepest (bp)"),
+                       _nh("First inverted"), _nh("Last inverted")],
+                      ([r["curve"], f"{r['short_tenor']} above {r['long_tenor']}", _n(fmt_count(r["episodes"])),
+                        _n(fmt_count(r["days"])), _n(fmt_bp(r["deepest"])), _n(fmt_date(r["first"])),
+                        _n(fmt_date(r["last"]))] for r in _rows(summary))))
+    longest = e.sort_values(["days", "first_day"], ascending=[False, True]).head(12).sort_values(
+        ["curve", "first_day"])
+    out.append(_table(["Curve", "Pair", _nh("First day"), _nh("Last day"), _nh("Days"), _nh("Deepest (bp)")],
+                      ([r["curve"], f"{r['short_tenor']} above {r['long_tenor']}", _n(fmt_date(r["first_day"])),
+                        _n(fmt_date(r["last_day"])), _n(fmt_count(r["days"])), _n(fmt_bp(r["deepest_bp"]))]
+                       for r in _rows(longest)),
+                      caption="The longest episodes (up to 12), in date order. Days count observed days; "
+                              "deepest is the most negative long-minus-short spread."))
+    return "".join(out)
+
+
+# ---- sections 3 to 6: per curve ----------------------------------------------------------------
+
+def _per_curve(curves: Sequence[CurveReport], index: int, intro: str,
+               body: Callable[[CurveReport, int], str]) -> str:
+    parts = [f'<p class="intro">{esc(intro)}</p>']
+    if not curves:
+        parts.append(_empty("No curve in scope."))
+    for i, c in enumerate(curves):
+        parts.append(_curve_heading(c) + body(c, i))
+    return _section(index, "".join(parts))
+
+
+def _history_body(c: CurveReport, i: int) -> str:
+    return _figure(charts.history_chart(c, f"h{i}"), f"fig-history-{i}",
+                   "No curve has been built for this curve yet (run 'afterward build').")
+
+
+def _summary_rows(c: CurveReport, regime: str = "all") -> pd.DataFrame:
+    s = c.summary
+    if s is None or s.empty:
+        return pd.DataFrame()
+    s = s[s["regime"] == regime] if "regime" in s else s
+    return s.sort_values(["start_months", "tenor_months"]).reset_index(drop=True)
+
+
+def _interval(r: pd.Series) -> str:
+    se = r.get("hac_se_bp")
+    if is_missing(se) or is_missing(r.get("mean_error_bp")):
+        return MISSING
+    lo = float(r["mean_error_bp"]) - 1.96 * float(se)
+    hi = float(r["mean_error_bp"]) + 1.96 * float(se)
+    return f"{fmt_bp(lo, signed=True)} to {fmt_bp(hi, signed=True)}"
+
+
+def _forwards_body(c: CurveReport, i: int) -> str:
+    out = [_figure(charts.forwards_chart(c, f"f{i}"), f"fig-forwards-{i}",
+                   "No forward of the charted horizons has reached its target date yet.")]
+    s = _summary_rows(c)
+    if not s.empty and c.pairs:
+        keep = s[[(int(a), int(b)) in set(c.pairs) for a, b in zip(s["start_months"], s["tenor_months"],
+                                                                     strict=True)]]
+        if len(keep):
+            out.append(_table(
+                ["Forward", _nh("Outcomes"), _nh("As-of from"), _nh("As-of to"), _nh("Mean error (bp)"),
+                 _nh("RMSE forward (bp)"), _nh("RMSE no-change (bp)")],
+                ([f"{months_label(r['tenor_months'])} rate, {months_label(r['start_months'])} ahead",
+                  _n(fmt_count(r["n"])), _n(fmt_date(r["first_as_of"])), _n(fmt_date(r["last_as_of"])),
+                  _n(fmt_bp(r["mean_error_bp"], signed=True)), _n(fmt_bp(r["rmse_bp"])), _n(fmt_bp(r["rw_rmse_bp"]))]
+                 for r in _rows(keep))))
+    return "".join(out)
+
+
+def _errors_body(c: CurveReport, i: int) -> str:
+    out = [_note(n) for n in c.notes]
+    out.append(_figure(charts.error_chart(c, f"e{i}"), f"fig-errors-{i}",
+                       "No audit figures yet (run 'afterward realize' and 'afterward audit')."))
+    out.append(_figure(charts.rmse_chart(c, f"r{i}"), f"fig-rmse-{i}", "No audit figures yet."))
+    s = _summary_rows(c)
+    if s.empty:
+        return "".join(out)
+    out.append("<h4>Test results (all outcomes)</h4>")
+    if (s["start_months"] == 0).any():
+        out.append('<p class="more">Forwards starting now (0M) are the spot rate itself; their error is zero by '
+                   "construction, so they are left out of the table and the charts.</p>")
+        s = s[s["start_months"] > 0]
+    head = ["Start", "Tenor", _nh("n"), _nh("Mean error (bp)"), _nh("HAC 95 % interval (bp)"), _nh("Lags"),
+            _nh("RMSE fwd (bp)"), _nh("RMSE no-change (bp)"), _nh("RMSE ratio"), _nh("DM p"), _nh("MZ slope"),
+            _nh("MZ p"), _nh("FB slope"), _nh("Hit rate")]
+    body = []
+    for _, r in s.iterrows():
+        cells = [months_label(r["start_months"]), months_label(r["tenor_months"]), _n(fmt_count(r["n"])),
+                 _n(fmt_bp(r["mean_error_bp"], signed=True)), _n(_interval(r)),
+                 _n(fmt_count(r.get("lags"))), _n(fmt_bp(r["rmse_bp"])), _n(fmt_bp(r["rw_rmse_bp"])),
+                 _n(fmt_num(r["rmse_ratio"], 2)), _n(fmt_pvalue(r["dm_pvalue"])), _n(fmt_num(r["mz_beta"], 2)),
+                 _n(fmt_pvalue(r["mz_pvalue"])), _n(fmt_num(r["fb_beta"], 2)),
+                 _n(fmt_pct(r["hit_rate"], 0) if not is_missing(r["hit_rate"]) else MISSING)]
+        verdict = r.get("verdict")
+        if is_missing(verdict) or not str(verdict):
+            body.append(f"<tr>{''.join(x.html() if isinstance(x, _Cell) else _Cell(x).html() for x in cells)}</tr>")
+            continue
+        body.append('<tr class="has-verdict">'
+                    + "".join(x.html() if isinstance(x, _Cell) else _Cell(x).html() for x in cells) + "</tr>")
+        body.append(f'<tr class="verdict"><td colspan="{len(head)}">{esc(verdict)}</td></tr>')
+    out.append('<div class="table-wrap"><table class="results"><thead><tr>'
+               + "".join(h.html("th") if isinstance(h, _Cell) else f"<th>{esc(h)}</th>" for h in head)
+               + "</tr></thead><tbody>" + "".join(body) + "</tbody></table></div>")
+    out.append('<p class="more">Mean error: forward minus realised rate. HAC: Newey-West (Bartlett) with the '
+               "lags shown (the overlap of consecutive forecasts). RMSE ratio: forward over no-change; below 1 "
+               "the forwards forecast better. DM p: Diebold-Mariano test (Harvey-Leybourne-Newbold form) of "
+               "equal squared error against no-change. MZ: Mincer-Zarnowitz regression of realised on forward "
+               "(p: joint test of intercept 0 and slope 1). FB slope: Fama-Bliss slope of the realised change on "
+               "the forward-spot spread. Hit rate: share of predicted moves whose direction came true. "
+               "Significance at 5 %.</p>")
+    regimes = c.summary[(c.summary["regime"] != "all") & (c.summary["start_months"] > 0)] \
+        if "regime" in c.summary else pd.DataFrame()
+    if len(regimes):
+        regimes = regimes.sort_values(["start_months", "tenor_months", "regime"])
+        out.append("<details><summary>The same by regime (curve inverted or normal on the as-of date)</summary>")
+        out.append(_table(
+            ["Start", "Tenor", "Regime", _nh("n"), _nh("Mean error (bp)"), _nh("HAC 95 % interval (bp)"),
+             _nh("RMSE fwd (bp)"), _nh("RMSE no-change (bp)"), "Verdict"],
+            ([months_label(r["start_months"]), months_label(r["tenor_months"]), r["regime"], _n(fmt_count(r["n"])),
+              _n(fmt_bp(r["mean_error_bp"], signed=True)), _n(_interval(r)), _n(fmt_bp(r["rmse_bp"])),
+              _n(fmt_bp(r["rw_rmse_bp"])), r.get("verdict") if not is_missing(r.get("verdict")) else MISSING]
+             for r in _rows(regimes)), cls="results"))
+        out.append("</details>")
+    return "".join(out)
+
+
+def _premium_body(c: CurveReport, i: int) -> str:
+    out = [_figure(charts.premium_chart(c, f"p{i}"), f"fig-premium-{i}",
+                   "Not enough outcomes yet for a trailing-window premium.")]
+    p = c.premium
+    if p is not None and not p.empty:
+        p = p[p["start_months"] > 0]
+        latest = p.sort_values("as_of").groupby("start_months", sort=True).tail(1).sort_values("start_months")
+        out.append(_table(
+            ["Start", "Tenor", _nh("Window ends"), _nh("Premium (bp)"), _nh("95 % band (bp)")],
+            ([months_label(r["start_months"]), months_label(r["tenor_months"]), _n(fmt_date(r["as_of"])),
+              _n(fmt_bp(r["premium_bp"], signed=True)),
+              _n(f"{fmt_bp(r['lower_bp'], signed=True)} to {fmt_bp(r['upper_bp'], signed=True)}")]
+             for r in _rows(latest)),
+            caption="The latest trailing-window premium of each horizon."))
+    return "".join(out)
+
+
+# ---- section 7 and the page ---------------------------------------------------------------------
+
+CAUTIONS = (
+    ("Statistical findings, not advice.",
+     "This report describes how past forwards compared with the rates that followed. It is evidence for "
+     "model validation and review; it is not investment advice and does not forecast future rates."),
+    ("Overlapping observations.",
+     "Forecasts made on consecutive days for horizons longer than a day share most of their future, so "
+     "their errors are strongly correlated. The intervals and tests use Newey-West standard errors with "
+     "lags for that overlap, but a sample of a few years holds only a few independent outcomes at long "
+     "horizons; read long-horizon results with that in mind."),
+    ("Dependence on input data and conventions.",
+     "Every figure depends on the files listed in section 1, on the quote type, compounding, day count, "
+     "calendar and interpolation method configured for each curve, and on the checks that held days "
+     "back. Different inputs or conventions give different numbers; the input fingerprint, program version "
+     "and schema version identify the ones used here."),
+    ("Past sample, one history.",
+     "The term premium and the errors are measured over one realised path of rates. A period dominated "
+     "by rising or falling rates moves them, and they need not persist."),
+    ("Decisions stay with people.",
+     "Conclusions about models, limits or hedges remain with qualified staff, under the institution's own "
+     "governance and the regulation that applies locally."),
+)
+
+
+def _cautions() -> str:
+    items = "".join(f"<li><strong>{esc(a)}</strong> {esc(b)}</li>" for a, b in CAUTIONS)
+    return _section(6, f'<ol class="cautions">{items}</ol>')
+
+
+def _facts(data: ReportData) -> str:
+    curves = data.curves
+    days = sum(int(c.days_observed) for c in curves)
+    loads = data.loads
+    files = int((loads["status"] == "loaded").sum()) if loads is not None and not loads.empty else 0
+    outcomes = sum(int(c.summary.loc[c.summary["regime"] == "all", "n"].sum())
+                   for c in curves if c.summary is not None and not c.summary.empty)
+    findings = 0 if data.findings is None else len(data.findings)
+    pending = sum(int(c.pending) for c in curves)
+    items = [("Curves", fmt_count(len(curves))), ("Curve-days", fmt_count(days)), ("Input files", fmt_count(files)),
+             ("Scored forwards", fmt_count(outcomes)), ("Open findings", fmt_count(findings)),
+             ("Pending forwards", fmt_count(pending))]
+    return '<dl class="facts">' + "".join(f"<div><dt>{esc(a)}</dt><dd>{esc(b)}</dd></div>" for a, b in items) + "</dl>"
+
+
+def _span(curves: Sequence[CurveReport]) -> tuple[object, object]:
+    firsts = [pd.Timestamp(c.first_day) for c in curves if not is_missing(c.first_day)]
+    lasts = [pd.Timestamp(c.last_day) for c in curves if not is_missing(c.last_day)]
+    return (min(firsts) if firsts else None, max(lasts) if lasts else None)
+
+
+def render_report(data: ReportData) -> str:
+    """The whole report as one self-contained HTML document (UTF-8 text).
+
+    Pure: reads only ``data``; the same data and ``generated_at`` give the same page.
+    """
+    first, last = _span(data.curves)
+    names = ", ".join(c.name for c in data.curves) or "none"
+    lede = (f"Curves {names} \u00b7 as-of dates {fmt_date(first)} to {fmt_date(last)} \u00b7 generated "
+            f"{fmt_timestamp(data.generated_at)}")
+    toc = "".join(f'<li><a href="#{a}">{esc(h)}</a></li>' for a, h in SECTIONS)
+    body = [
+        '<header class="masthead"><p class="kicker">Model validation evidence \u00b7 implied forwards against '
+        "realised rates</p>"
+        f"<h1>{esc(data.title)}</h1><p class=\"lede\">{esc(lede)}</p>{_facts(data)}"
+        f'<nav class="contents"><p>Contents</p><ol>{toc}</ol></nav></header>',
+        _scope(data),
+        _quality(data, first, last),
+        _per_curve(data.curves, 2, "Each curve over time: the colour shows the rate at each tenor, the lines "
+                   "follow a few tenors, and shading marks the periods when the short end stood above the "
+                   "long end.", _history_body),
+        _per_curve(data.curves, 3, "For a few horizons, each forward drawn on the date it was a forecast for, "
+                   "next to the rate actually observed on that date and to the no-change forecast (today's "
+                   "rate, carried forward).", _forwards_body),
+        _per_curve(data.curves, 4, "How far the forwards missed, on average and in spread, at each horizon, "
+                   "and whether they beat the no-change forecast.", _errors_body),
+        _per_curve(data.curves, 5, "The ex-post term premium: the average amount by which the forwards "
+                   "exceeded the rates that followed, over a trailing window of observation days.", _premium_body),
+        _cautions(),
+        f"<footer>afterward {esc(data.program_version)} \u00b7 schema {esc(data.schema_version)} \u00b7 generated "
+        f"{esc(fmt_timestamp(data.generated_at))}. This file is self-contained: it loads nothing from "
+        "anywhere.</footer>",
+    ]
+    return (
+        "<!DOCTYPE html>\n<html lang=\"en\"><head><meta charset=\"utf-8\">"
+        f'<meta http-equiv="Content-Security-Policy" content="{CSP}">'
+        '<meta name="viewport" content="width=device-width, initial-scale=1">'
+        f'<meta name="generator" content="afterward {esc(data.program_version)}">'
+        f"<title>{esc(data.title)} \u2013 {esc(names)}</title>"
+        f"<style>{STYLESHEET}</style></head>"
+        f'<body><div class="sheet">{"".join(body)}</div></body></html>\n'
+    )
+
+

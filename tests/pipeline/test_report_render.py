@@ -1,0 +1,359 @@
+"""The report renderer on small hand-made frames: formatting, thinning, SVG clean-up, the page.
+
+References: plain pandas (period grouping for the thinning), hashlib (the input fingerprint), the
+standard library's HTML and XML parsers (well-formed markup), and figures written out by hand.
+"""
+
+from __future__ import annotations
+
+import base64
+import hashlib
+import io
+import re
+import xml.etree.ElementTree as ET
+from datetime import UTC, date, datetime
+from html.parser import HTMLParser
+
+import numpy as np
+import pandas as pd
+import pytest
+from PIL import Image
+
+from pipeline.report import SECTIONS, CurveReport, ReportData, charts, choose_pairs, input_fingerprint, render_report
+from pipeline.report.fmt import (
+    MISSING,
+    fmt_bp,
+    fmt_count,
+    fmt_date,
+    fmt_pct,
+    fmt_pvalue,
+    fmt_timestamp,
+    months_label,
+)
+from pipeline.report.series import choose_period, period_keys, period_start, thin_frame, thin_index
+from pipeline.report.svg import chart_style, figure_svg, new_figure
+
+NOW = datetime(2031, 7, 1, 9, 30, 0, tzinfo=UTC)
+
+
+# ---- formatting -----------------------------------------------------------------------------------
+
+@pytest.mark.parametrize(("value", "kwargs", "expected"), [
+    (18.436245, {}, "18.4"),
+    (18.436245, {"signed": True}, "+18.4"),
+    (-7.25, {"signed": True}, "-7.2"),          # -7.25 is stored as -7.2499999...: rounds to -7.2
+    (-0.04, {"signed": True}, "0.0"),           # no "-0.0"
+    (1234.56, {}, "1,234.6"),
+    (3.0, {"unit": True}, "3.0 bp"),
+    (float("nan"), {}, MISSING),
+    (None, {"unit": True}, MISSING),
+], ids=["plain", "signed", "negative", "negative-zero", "thousands", "unit", "nan", "none"])
+def test_fmt_bp(value: object, kwargs: dict, expected: str) -> None:
+    assert fmt_bp(value, **kwargs) == expected
+
+
+@pytest.mark.parametrize(("func", "value", "expected"), [
+    (fmt_pct, 0.0525, "5.25 %"),
+    (fmt_pct, -0.001, "-0.10 %"),
+    (fmt_pvalue, 0.0004, "< 0.001"),
+    (fmt_pvalue, 0.71234, "0.712"),
+    (fmt_count, 7737, "7,737"),
+    (fmt_count, pd.NA, MISSING),
+    (fmt_date, np.datetime64("2032-02-29"), "2032-02-29"),
+    (fmt_date, pd.Timestamp("2031-01-31 17:45"), "2031-01-31"),
+    (fmt_date, date(2031, 12, 24), "2031-12-24"),
+    (fmt_date, pd.NaT, MISSING),
+    (fmt_timestamp, datetime(2031, 1, 2, 3, 4, 5, tzinfo=UTC), "2031-01-02 03:04:05 UTC"),
+    (fmt_timestamp, pd.Timestamp("2031-01-02 03:04:05"), "2031-01-02 03:04:05"),
+    (months_label, 0, "0M"),
+    (months_label, 6, "6M"),
+    (months_label, 18, "18M"),
+    (months_label, 24, "2Y"),
+], ids=["pct", "pct-negative", "p-tiny", "p", "count", "count-missing", "date-np", "date-ts", "date-py", "date-nat",
+        "ts-utc", "ts-naive", "m0", "m6", "m18", "m24"])
+def test_formatters(func, value: object, expected: str) -> None:  # noqa: ANN001
+    assert func(value) == expected
+
+
+# ---- thinning ------------------------------------------------------------------------------------
+
+def _business_days(first: str, last: str) -> np.ndarray:
+    return pd.bdate_range(first, last).to_numpy().astype("datetime64[D]")
+
+
+@pytest.mark.parametrize(("period", "pandas_freq"), [("week", "W-SUN"), ("month", "M"), ("quarter", "Q"),
+                                                      ("year", "Y")], ids=["week", "month", "quarter", "year"])
+def test_thin_index_keeps_the_last_day_of_each_period_like_pandas(period: str, pandas_freq: str) -> None:
+    rng = np.random.default_rng(7)
+    days = np.sort(rng.choice(_business_days("2030-01-01", "2034-12-31"), size=700, replace=False))
+    # reference: pandas periods (weeks ending Sunday = weeks starting Monday), last row of each
+    idx = pd.DatetimeIndex(days)
+    expected = pd.Series(np.arange(days.size)).groupby(idx.to_period(pandas_freq)).tail(1).to_numpy()
+    assert np.array_equal(thin_index(days, period), expected)
+    starts = period_start(period_keys(days, period), period)
+    assert np.array_equal(starts, idx.to_period(pandas_freq).start_time.to_numpy().astype("datetime64[D]"))
+
+
+def test_thin_frame_by_group_matches_pandas() -> None:
+    days = _business_days("2030-01-01", "2030-12-31")
+    frame = pd.DataFrame({"as_of": np.tile(days, 2), "tenor": np.repeat(["3M", "10Y"], days.size),
+                          "rate": np.arange(2 * days.size, dtype=float)})
+    shuffled = frame.sample(frac=1.0, random_state=3)
+    got = thin_frame(shuffled, "as_of", "month", by=["tenor"])
+    ref = (frame.assign(m=pd.DatetimeIndex(frame["as_of"]).to_period("M"))
+           .sort_values(["tenor", "as_of"]).groupby(["tenor", "m"]).tail(1).drop(columns="m").reset_index(drop=True))
+    pd.testing.assert_frame_equal(got, ref)
+    assert len(shuffled) == 2 * days.size  # the input is left as it was
+
+
+@pytest.mark.parametrize(("years", "max_points", "expected"), [(1, 1600, "day"), (30, 1600, "week"),
+                                                               (30, 400, "month"), (30, 150, "quarter")],
+                         ids=["1y-daily", "30y-weekly", "30y-monthly", "30y-quarterly"])
+def test_choose_period(years: int, max_points: int, expected: str) -> None:
+    days = _business_days("2000-01-01", f"{2000 + years - 1}-12-31")
+    assert choose_period(days, max_points) == expected
+
+
+@pytest.mark.parametrize(("starts", "tenors", "expected"), [
+    ([0, 3, 6, 12, 24, 36, 60], [3, 12, 24, 60], ((6, 12), (24, 12), (60, 12))),
+    ([0, 3, 12], [3, 12], ((3, 12), (12, 12))),
+    ([0, 3], [3, 6], ((3, 6),)),           # 6M is the tenor closest to a year
+    ([0], [3, 12], ()),
+    ([6, 12], [], ()),
+], ids=["demo", "short-config", "one-start", "only-spot", "no-tenors"])
+def test_choose_pairs(starts: list[int], tenors: list[int], expected: tuple) -> None:
+    assert choose_pairs(starts, tenors) == expected
+
+
+def test_input_fingerprint_is_order_free_sha256_of_the_digests() -> None:
+    digests = [hashlib.sha256(b).hexdigest() for b in (b"one", b"two", b"three")]
+    expected = hashlib.sha256("\n".join(sorted(digests)).encode()).hexdigest()
+    assert input_fingerprint(digests) == expected
+    assert input_fingerprint(reversed(digests)) == expected
+
+
+# ---- SVG fragments --------------------------------------------------------------------------------
+
+def _tiny_svg(prefix: str) -> str:
+    with chart_style():
+        fig = new_figure(4, 2)
+        ax = fig.add_subplot()
+        ax.plot([0, 1, 2], [1, 3, 2], label="a line")
+        ax.imshow(np.arange(6.0).reshape(2, 3), extent=(0, 2, 0, 1), aspect="auto", interpolation="none")
+        ax.set_title("Tiny <chart> & co")
+        ax.legend()
+        return figure_svg(fig, prefix, "Tiny <chart> & co")
+
+
+def test_figure_svg_is_an_inline_fragment_with_its_own_ids() -> None:
+    a, b = _tiny_svg("ca"), _tiny_svg("cb")
+    for svg, prefix in ((a, "ca"), (b, "cb")):
+        assert svg.startswith("<svg") and svg.endswith("</svg>")
+        for bad in ("<?xml", "<!DOCTYPE", "http://", "https://", "<metadata", "<script", "xmlns"):
+            assert bad not in svg
+        ids = re.findall(r'\bid="([^"]+)"', svg)
+        assert ids and all(i.startswith(prefix + "-") for i in ids)
+        refs = re.findall(r'url\(#([^)]+)\)', svg) + re.findall(r'href="#([^"]+)"', svg)
+        assert refs and set(refs) <= set(ids)  # every reference points inside the same chart
+        assert 'aria-label="Tiny &lt;chart&gt; &amp; co"' in svg
+        assert 'width="100%"' in svg and "viewBox=" in svg
+        # well-formed XML once the namespaces the HTML parser supplies are declared (standard library parser)
+        ET.fromstring(svg.replace("<svg", '<svg xmlns="http://www.w3.org/2000/svg" '
+                                  'xmlns:xlink="http://www.w3.org/1999/xlink"', 1))
+    assert not set(re.findall(r'\bid="([^"]+)"', a)) & set(re.findall(r'\bid="([^"]+)"', b))
+    assert _tiny_svg("ca") == a  # the same figure draws the same bytes
+
+
+# ---- the page -------------------------------------------------------------------------------------
+
+class _Page(HTMLParser):
+    """Collects h2 texts, figures, and checks that every non-void element is closed in order."""
+
+    VOID = {"meta", "br", "img", "hr", "input", "link", "wbr", "col", "area", "base", "source"}
+
+    def __init__(self) -> None:
+        super().__init__(convert_charrefs=True)
+        self.stack: list[str] = []
+        self.errors: list[str] = []
+        self.h2: list[str] = []
+        self.figures: list[str] = []
+        self._in_h2 = False
+
+    def handle_starttag(self, tag: str, attrs: list) -> None:
+        a = dict(attrs)
+        if tag == "figure":
+            self.figures.append(a.get("id", ""))
+        if tag == "h2":
+            self._in_h2 = True
+            self.h2.append("")
+        if tag not in self.VOID:
+            self.stack.append(tag)
+
+    def handle_startendtag(self, tag: str, attrs: list) -> None:
+        pass
+
+    def handle_endtag(self, tag: str) -> None:
+        if tag == "h2":
+            self._in_h2 = False
+        if not self.stack or self.stack[-1] != tag:
+            self.errors.append(f"</{tag}> closes {self.stack[-1] if self.stack else 'nothing'}")
+            return
+        self.stack.pop()
+
+    def handle_data(self, data: str) -> None:
+        if self._in_h2:
+            self.h2[-1] += data
+
+
+def _parse(page: str) -> _Page:
+    p = _Page()
+    p.feed(page)
+    p.close()
+    return p
+
+
+def _curve(name: str = "alpha", days: int = 520) -> CurveReport:
+    d = _business_days("2030-01-01", "2035-12-31")[:days]
+    tenors = ("3M", "2Y", "10Y")
+    rates = {"3M": 0.03 + 0.01 * np.sin(np.arange(d.size) / 60), "2Y": np.full(d.size, 0.035),
+             "10Y": 0.04 - 0.015 * (np.arange(d.size) > 200) * (np.arange(d.size) < 260)}
+    history = pd.DataFrame({"as_of": np.tile(d, 3), "tenor": np.repeat(tenors, d.size),
+                            "rate": np.concatenate([rates[t] for t in tenors])})
+    episodes = pd.DataFrame({"short_tenor": ["3M"], "long_tenor": ["10Y"], "first_day": [d[201]], "last_day": [d[259]],
+                             "days": [59], "deepest_bp": [-120.04]})
+    pairs = ((6, 12), (24, 12))
+    rows = []
+    for s, _ in pairs:
+        k = s * 21
+        target = d[k:]
+        n = target.size
+        rows.append(pd.DataFrame({"start_months": s, "tenor_months": 12, "as_of": d[:n], "target_date": target,
+                                  "forward_rate": 0.035 + 0.0001 * s, "realized_rate": rates["3M"][k:],
+                                  "spot_rate": rates["3M"][:n]}))
+    outcomes = pd.concat(rows, ignore_index=True)
+    outcomes["error_bp"] = (outcomes["forward_rate"] - outcomes["realized_rate"]) * 1e4
+    outcomes["rw_error_bp"] = (outcomes["spot_rate"] - outcomes["realized_rate"]) * 1e4
+    summary = pd.DataFrame({
+        "curve": name, "start_months": [0, 6, 24, 6], "tenor_months": [12, 12, 12, 12],
+        "regime": ["all", "all", "all", "inverted"], "n": [520, 394, 16, 40],
+        "first_as_of": d[0], "last_as_of": d[-1],
+        "mean_error_bp": [0.0, 18.436245, -42.75, 5.0], "hac_se_bp": [np.nan, 3.645911, 20.0, np.nan],
+        "lags": [0, 125, 15, 10], "rmse_bp": [0.0, 49.7035, 70.01, 9.0], "rw_rmse_bp": [0.0, 49.2878, 60.0, 8.0],
+        "rmse_ratio": [np.nan, 1.0084, 1.1668, 1.125], "dm_pvalue": [np.nan, 0.79, 0.0004, np.nan],
+        "mz_beta": [np.nan, 0.97, 0.5, np.nan], "mz_pvalue": [np.nan, 0.0001, 0.2, np.nan],
+        "fb_beta": [np.nan, 1.2, -0.3, np.nan], "hit_rate": [np.nan, 0.55, 0.5, np.nan],
+        "verdict": ["spot", "forwards over-predicted <by> 18.4 bp", "forwards under-predicted 42.8 bp", "inv"],
+        "window_from": pd.NaT, "window_to": pd.NaT, "data_version": pd.Timestamp("2031-06-30 18:00"),
+        "computed_at": pd.Timestamp("2031-06-30 18:05"),
+    })
+    pd_days = d[250:]
+    premium = pd.DataFrame({"start_months": np.repeat([6, 24], pd_days.size), "tenor_months": 12,
+                            "as_of": np.tile(pd_days, 2), "window_days": 250,
+                            "premium_bp": np.tile(np.linspace(-10, 30, pd_days.size), 2)})
+    premium["lower_bp"] = premium["premium_bp"] - 15
+    premium["upper_bp"] = premium["premium_bp"] + 15
+    return CurveReport(
+        name=name, conventions=(("Compounding", "annual"), ("Day count", "ACT/360")), tenors=tenors,
+        history=history, history_label="zero rate (annual, ACT/360)", inversion_pair=("3M", "10Y"),
+        episodes=episodes, pairs=pairs, outcomes=outcomes, summary=summary, premium=premium, premium_tenor=12,
+        premium_window_days=250, first_day=d[0], last_day=d[-1], days_observed=d.size, pending=17,
+        notes=("A note & a caveat.",),
+    )
+
+
+def _data(curves: tuple[CurveReport, ...]) -> ReportData:
+    loads = pd.DataFrame({
+        "load_id": [1, 2, 3], "file_name": ["alpha_2030.csv", "alpha_2031.csv", "broken.csv"],
+        "sha256": [hashlib.sha256(b).hexdigest() for b in (b"a", b"b", b"c")], "curve": ["alpha", "alpha", None],
+        "started_at": pd.to_datetime(["2031-01-05 10:00", "2031-02-05 10:00", "2031-02-06 10:00"]),
+        "rows_read": [300, 220, 0], "rows_accepted": [299, 220, 0], "rows_revised": [0, 2, 0],
+        "rows_rejected": [1, 0, 0], "status": ["loaded", "loaded", "refused"], "detail": [None, None, "not a CSV"],
+    })
+    findings = pd.DataFrame({"curve": "alpha", "as_of": pd.to_datetime(["2030-03-04", "2030-03-05", "2031-05-06"]),
+                             "check_name": ["jump", "missing_day", "inversion"], "severity": ["reject", "warn", "info"],
+                             "tenor": ["3M", None, None], "detail": ["moved 80 bp", "no curve observed", "3M > 10Y"]})
+    rejected = pd.DataFrame({"load_id": [1, 1, 1], "file_name": "alpha_2030.csv", "line": [7, 7, 9],
+                             "raw": ["2030-01-1?,1,2,3", "2030-01-1?,1,2,3", "=cmd()"],
+                             "reason": ["unparseable", "unparseable", "duplicate"]})
+    builds = pd.DataFrame({"curve": ["alpha"], "method": ["linear_zero"], "code_version": ["afterward 9.9"],
+                           "days": [520], "first_day": [date(2030, 1, 1)], "last_day": [date(2031, 12, 31)]})
+    return ReportData(generated_at=NOW, program_version="9.9", schema_version=5, curves=curves,
+                      store_path="/data/store.duckdb", config_path="/data/afterward.toml", loads=loads,
+                      builds=builds, findings=findings, held=findings[findings["severity"] == "reject"],
+                      rejected_rows=rejected)
+
+
+@pytest.fixture(scope="module")
+def page() -> str:
+    return render_report(_data((_curve(),)))
+
+
+def test_page_has_every_section_in_order_and_balanced_markup(page: str) -> None:
+    parsed = _parse(page)
+    assert parsed.errors == [] and parsed.stack == []
+    assert [re.sub(r"^\d+", "", h).strip() for h in parsed.h2] == [h for _, h in SECTIONS]
+    assert parsed.figures == ["fig-findings", "fig-history-0", "fig-forwards-0", "fig-errors-0", "fig-rmse-0",
+                              "fig-premium-0"]
+
+
+def test_page_loads_nothing_and_runs_nothing(page: str) -> None:
+    low = page.lower()
+    for bad in ("http://", "https://", "<script", "@import", "<link", "javascript:", " on" + "load="):
+        assert bad not in low
+    assert all(u.startswith("#") for u in re.findall(r"url\(([^)]*)\)", page))
+    assert re.search(r'<meta http-equiv="Content-Security-Policy" content="default-src \'none\';', page)
+
+
+def test_numbers_are_formatted_for_people(page: str) -> None:
+    # mean 18.436245 bp, se 3.645911 bp: interval 18.436245 -/+ 1.96 * 3.645911 = 11.29 .. 25.58 (by hand)
+    assert '<td class="n">+18.4</td><td class="n">+11.3 to +25.6</td>' in page
+    assert '<td class="n">-42.8</td><td class="n">-82.0 to -3.5</td>' in page   # -42.75 -/+ 39.2
+    assert '<td class="n">1.01</td><td class="n">0.790</td>' in page            # RMSE ratio, DM p
+    assert '<td class="n">&lt; 0.001</td>' in page                               # DM p 0.0004
+    assert '<td class="n">55 %</td>' in page                                     # hit rate
+    assert "2030-03-04" in page and "2031-07-01 09:30:00 UTC" in page
+    assert '<td class="n">-120.0</td>' in page                                   # deepest inversion, bp
+    assert "forwards over-predicted &lt;by&gt; 18.4 bp" in page                  # verdicts are escaped text
+    assert "A note &amp; a caveat." in page
+    # start 0 is left out of the results: its verdict does not appear; the regime rows sit in <details>
+    assert ">spot<" not in page and "inverted" in page
+
+
+def test_provenance_block(page: str) -> None:
+    digests = [hashlib.sha256(b).hexdigest() for b in (b"a", b"b")]  # the two loaded files, not the refused one
+    assert hashlib.sha256("\n".join(sorted(digests)).encode()).hexdigest() in page
+    assert "<strong>2</strong> loaded file(s), load ids 1 to 2" in page
+    assert "broken.csv" in page and "refused: not a CSV" in page
+    assert "<dt>Store schema version</dt><dd>5</dd>" in page and "afterward 9.9" in page
+    # rejected rows of one input line are shown once with their count
+    assert re.search(r'<td class="n">7</td><td>unparseable</td><td class="n">2</td>', page)
+
+
+def test_rendering_is_deterministic(page: str) -> None:
+    assert render_report(_data((_curve(),))) == page
+
+
+def test_an_empty_store_still_gives_a_whole_page() -> None:
+    bare = ReportData(generated_at=NOW, program_version="9.9", schema_version=5, curves=(CurveReport(name="beta"),))
+    text = render_report(bare)
+    parsed = _parse(text)
+    assert parsed.errors == [] and [re.sub(r"^\d+", "", h).strip() for h in parsed.h2] == [h for _, h in SECTIONS]
+    assert parsed.figures == []
+    assert "No file has been loaded" in text and "No open findings." in text
+    assert "No curve has been built" in text
+
+
+def test_long_history_is_thinned_to_weeks() -> None:
+    days = _business_days("1996-01-01", "2025-12-31")
+    tenors = tuple(f"{y}Y" for y in (1, 2, 3, 5, 7, 10, 15, 20, 30)) + ("1M", "3M", "6M", "1W", "2W")
+    history = pd.DataFrame({"as_of": np.tile(days, len(tenors)), "tenor": np.repeat(tenors, days.size),
+                            "rate": np.tile(np.linspace(0.01, 0.08, days.size), len(tenors))})
+    chart = charts.history_chart(CurveReport(name="long", tenors=tenors, history=history), "t")
+    assert chart is not None and "one point per week" in chart.caption
+    assert len(chart.svg.encode()) < 600_000
+    # the heatmap is one embedded PNG, a pixel per tenor and week (weeks as pandas counts them, W-SUN)
+    pngs = re.findall(r'data:image/png;base64,([A-Za-z0-9+/=\s]+)"', chart.svg)
+    assert len(pngs) == 2  # the heatmap and its colour bar
+    sizes = {Image.open(io.BytesIO(base64.b64decode(re.sub(r"\s", "", b)))).size for b in pngs}
+    weeks = pd.DatetimeIndex(days).to_period("W-SUN").nunique()
+    assert (weeks, len(tenors)) in sizes
