@@ -17,6 +17,7 @@ demo: $(VENV)/.installed
 	$(VENV)/bin/afterward demo
 
 test: $(VENV)/.installed
+	bash .ci/install-chromium.sh
 	$(PY) -m ruff check pipeline warehouse flows tests benchmarks
 	$(PY) -m pytest
 
