@@ -176,15 +176,20 @@ def gather_report(cfg: Config, curve: str | None = None, first: str | None = Non
         curves = tuple(_curve_report(con, cfg, n, first, last) for n in names)
         placeholders = ", ".join("?" for _ in names)
         w, wp = _window_sql("as_of", first, last)
+        # the files the figures rest on (holding current quotes in scope), the files whose rows in scope were
+        # all restated or rejected (any version in scope), and the refused files (they carry no dates)
         loads = read_frame(
             con,
             "SELECT load_id, file_name, source_file, sha256, size_bytes, curve, started_at, finished_at, rows_read, "
-            "rows_accepted, rows_revised, rows_rejected, status, detail FROM load_log l "
-            "WHERE l.load_id IN (SELECT DISTINCT load_id FROM quote_version WHERE superseded_at IS NULL "
-            f"AND curve IN ({placeholders}){w}) "
+            "rows_accepted, rows_revised, rows_rejected, status, detail, "
+            "load_id IN (SELECT DISTINCT load_id FROM quote_version WHERE superseded_at IS NULL "
+            f"AND curve IN ({placeholders}){w}) AS current FROM load_log l "
+            "WHERE l.load_id IN (SELECT DISTINCT load_id FROM quote_version "
+            f"WHERE curve IN ({placeholders}){w}) "
             f"OR (l.status <> 'loaded' AND (l.curve IS NULL OR l.curve IN ({placeholders}))) "
-            f"OR (l.rows_rejected > 0 AND l.curve IN ({placeholders})) ORDER BY load_id",
-            [*names, *wp, *names, *names])
+            + ("" if first or last else f"OR (l.rows_rejected > 0 AND l.curve IN ({placeholders})) ")
+            + "ORDER BY load_id",
+            [*names, *wp, *names, *wp, *names, *([] if first or last else names)])
         builds = read_frame(
             con,
             "SELECT curve, method, code_version, count(*) AS days, min(as_of) AS first_day, max(as_of) AS last_day "
@@ -200,6 +205,8 @@ def gather_report(cfg: Config, curve: str | None = None, first: str | None = Non
             con, "SELECT r.load_id, l.file_name, r.line, r.raw, r.reason FROM rejected_rows r JOIN load_log l "
                  f"USING (load_id) WHERE l.curve IN ({placeholders}) OR l.curve IS NULL ORDER BY r.load_id, r.line",
             names)
+        if first or last:  # rejected rows carry no date: keep those of the files in scope
+            rejected = rejected[rejected["load_id"].isin(loads["load_id"])].reset_index(drop=True)
     return ReportData(
         generated_at=generated, program_version=program_version(), schema_version=schema, curves=curves,
         store_path=str(cfg.store_path), config_path=str(cfg.path) if cfg.path else "",

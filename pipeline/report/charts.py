@@ -123,7 +123,7 @@ def findings_chart(findings: pd.DataFrame, check_order: tuple[str, ...], first: 
         cmap = colormaps["cividis_r"].copy()
         cmap.set_bad("#ffffff")
         masked = np.ma.masked_less(counts, 0.5)
-        vmax = max(float(counts.max()), 2.0)
+        vmax = max(float(counts.max()), 10.0)  # at least a decade, so the log scale has readable ticks
         image = ax.imshow(masked, aspect="auto", interpolation="none", cmap=cmap, norm=LogNorm(1, vmax),
                           extent=(-0.5, n_cols - 0.5, n_rows - 0.5, -0.5))
         ax.grid(False)
@@ -191,7 +191,10 @@ def history_chart(curve: CurveReport, prefix: str) -> Chart | None:
     frame = frame[frame["tenor"].isin(tenors)]
     dates = np.unique(frame["as_of"].to_numpy())
     first, last = dates[0], dates[-1]
+    # a column per calendar day would leave weekends and holidays as empty stripes: a week is the finest
     heat_period = choose_period(dates, HEAT_COLUMNS)
+    if heat_period == "day":
+        heat_period = "week"
     heat = thin_frame(frame, "as_of", heat_period, by=["tenor"])
     keys = period_keys(heat["as_of"].to_numpy(), heat_period)
     k0, k1 = int(keys.min()), int(keys.max())

@@ -193,7 +193,7 @@ def _inputs(data: ReportData) -> str:
     if loads is None or loads.empty:
         return "".join(out) + _empty("No file has been loaded for these curves.")
     loads = loads.sort_values("load_id").reset_index(drop=True)
-    loaded = loads[loads["status"] == "loaded"]
+    loaded = _resting(loads)
     out.append(f"<p>The figures rest on <strong>{len(loaded):,}</strong> loaded file(s), load ids "
                f"{fmt_count(loaded['load_id'].min()) if len(loaded) else MISSING} to "
                f"{fmt_count(loaded['load_id'].max()) if len(loaded) else MISSING}. Input fingerprint "
@@ -201,7 +201,7 @@ def _inputs(data: ReportData) -> str:
                f'<span class="mono">{input_fingerprint(loaded["sha256"])}</span></p>')
     rows = []
     for curve, g in loads.groupby(loads["curve"].fillna("(not routed)").astype(str), sort=True):
-        ok = g[g["status"] == "loaded"]
+        ok = _resting(g)
         rows.append([curve, _n(fmt_count(len(ok))), _n(fmt_count(len(g) - len(ok))),
                      _n(fmt_count(ok["load_id"].min()) if len(ok) else MISSING),
                      _n(fmt_count(ok["load_id"].max()) if len(ok) else MISSING),
@@ -233,6 +233,15 @@ def _inputs(data: ReportData) -> str:
           _n(fmt_count(r["rows_read"])), r["status"]] for r in _rows(loads))))
     out.append("</details>")
     return "".join(out)
+
+
+def _resting(loads: pd.DataFrame) -> pd.DataFrame:
+    """The loaded files the figures rest on: those holding current quotes in scope (column ``current``,
+    when the caller gives it; else every loaded file)."""
+    ok = loads["status"] == "loaded"
+    if "current" in loads:
+        ok &= loads["current"].fillna(False).astype(bool)
+    return loads[ok]
 
 
 def _builds(data: ReportData) -> str:
@@ -326,7 +335,7 @@ def _clip(text: object, width: int) -> str:
 def _episodes(curves: Sequence[CurveReport]) -> str:
     frames = [c.episodes.assign(curve=c.name) for c in curves if c.episodes is not None and not c.episodes.empty]
     if not frames:
-        return _empty("The curves were never inverted at the configured tenor pairs.")
+        return _empty("No inversion episode at the configured tenor pairs in the period shown.")
     e = pd.concat(frames, ignore_index=True)
     out = []
     summary = (e.groupby(["curve", "short_tenor", "long_tenor"], sort=True)
@@ -508,7 +517,7 @@ def _facts(data: ReportData) -> str:
     curves = data.curves
     days = sum(int(c.days_observed) for c in curves)
     loads = data.loads
-    files = int((loads["status"] == "loaded").sum()) if loads is not None and not loads.empty else 0
+    files = len(_resting(loads)) if loads is not None and not loads.empty else 0
     outcomes = sum(int(c.summary.loc[c.summary["regime"] == "all", "n"].sum())
                    for c in curves if c.summary is not None and not c.summary.empty)
     findings = 0 if data.findings is None else len(data.findings)

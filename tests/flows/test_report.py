@@ -176,9 +176,16 @@ def test_cli_report_for_one_curve_and_a_window(demo_store: Path, tmp_path: Path)
                         "tenor_months = 12 AND as_of BETWEEN DATE '2001-01-01' AND DATE '2002-12-31'").df()
         days = con.execute("SELECT min(as_of), max(as_of) FROM quotes WHERE curve = 'govt' AND as_of BETWEEN "
                            "DATE '2001-01-01' AND DATE '2002-12-31'").fetchone()
+        files = con.execute("SELECT count(DISTINCT load_id), min(load_id), max(load_id) FROM quote_version "
+                            "WHERE curve = 'govt' AND superseded_at IS NULL AND as_of BETWEEN DATE '2001-01-01' "
+                            "AND DATE '2002-12-31'").fetchone()
     cells = _results_row(text, "govt", "6M", "1Y")
     assert cells[2] == f"{len(e):,}" and cells[3] == f"{e['error_bp'].mean():+.1f}"
     assert f"{days[0]:%Y-%m-%d} to {days[1]:%Y-%m-%d}" in text
+    # provenance and rejected rows are those of the files the window rests on (the garbled line of
+    # 2003-07 is outside it)
+    assert f"<strong>{files[0]:,}</strong> loaded file(s), load ids {files[1]:,} to {files[2]:,}" in text
+    assert "govt_2003-07.csv" not in text and "No input row was rejected." in text
 
 
 def test_unknown_curve_is_refused_by_the_cli(demo_store: Path) -> None:
