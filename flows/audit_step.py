@@ -36,7 +36,7 @@ def read_outcomes(con, cfg: Config, curve: str) -> pd.DataFrame:  # noqa: ANN001
             FROM outcomes o JOIN outcome r USING (curve, as_of, start_months, tenor_months)
             WHERE o.curve = ? AND r.superseded_at IS NULL
             ORDER BY o.start_months, o.tenor_months, o.as_of""",
-        [curve],
+        [curve], date_as_object=False,
     )
     for col in ("as_of", "target_date", "observed_on"):
         frame[col] = frame[col].to_numpy().astype("datetime64[D]")

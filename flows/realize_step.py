@@ -44,7 +44,7 @@ def run_realize(cfg: Config, curve: str | None = None) -> RealizeSummary:
             try:
                 stale = _supersede_stale(con, name, now)
                 observed = read_frame(con, "SELECT as_of FROM built_day WHERE curve = ? AND scenario = 'official' "
-                                           "ORDER BY as_of", [name])
+                                           "ORDER BY as_of", [name], date_as_object=False)
                 days = observed["as_of"].to_numpy().astype("datetime64[D]")
                 info = {"realized": 0, "re_derived": stale, "pending": 0}
                 if len(days):
@@ -56,7 +56,7 @@ def run_realize(cfg: Config, curve: str | None = None) -> RealizeSummary:
                              AND NOT EXISTS (SELECT 1 FROM outcome o
                                  WHERE o.superseded_at IS NULL AND o.curve = f.curve AND o.as_of = f.as_of
                                    AND o.start_months = f.start_months AND o.tenor_months = f.tenor_months)""",
-                        [name, str(days[-1])],
+                        [name, str(days[-1])], date_as_object=False,
                     )
                     if len(cand):
                         months = sorted({int(m) for m in cand["tenor_months"].unique()})
@@ -65,7 +65,7 @@ def run_realize(cfg: Config, curve: str | None = None) -> RealizeSummary:
                             f"""SELECT as_of, tenor_months, zero_rate FROM zero_rate_built
                                 WHERE curve = ? AND scenario = 'official'
                                   AND tenor_months IN ({', '.join(str(m) for m in months)})""",
-                            [name],
+                            [name], date_as_object=False,
                         )
                         for col in ("as_of", "start_date", "end_date"):
                             cand[col] = cand[col].to_numpy().astype("datetime64[D]")
