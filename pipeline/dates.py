@@ -62,6 +62,10 @@ class BusinessCalendar:
         object.__setattr__(self, "holidays", tuple(hol))
         object.__setattr__(self, "_cal", np.busdaycalendar(weekmask=mask, holidays=hol))
 
+    def __reduce__(self) -> tuple:
+        # np.busdaycalendar cannot be pickled: rebuild it from the fields (worker processes need this)
+        return (type(self), (self.weekend, self.holidays))
+
     @classmethod
     def of(cls, weekend: Iterable[str] = ("Sat", "Sun"), holidays: Iterable[object] = ()) -> BusinessCalendar:
         return cls(tuple(weekend), tuple(as_days(list(holidays))) if holidays else ())

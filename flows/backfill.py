@@ -1,0 +1,409 @@
+"""The backfill job as a Prefect flow: build a range of days in parallel chunks, with one writer.
+
+The flow reads each curve's quotes for the range once, picks the days due (not built yet, or whose
+quotes changed since their build, and not held back by an open reject finding; every day with
+``rebuild``), and splits them into chunks of days. Each chunk is computed by a task that is pure
+computation (:func:`compute_chunk`: curves, zero rates, forwards and shape checks for the chunk's
+days, returned as frames); those tasks run in parallel on the flow's task runner, which may be a
+local or remote Dask cluster. Only the flow's own process writes: one writer task stores each
+chunk as it arrives, one transaction per chunk, through the build step's writer. Then the build
+step runs once over the range (it withdraws the builds of days now held back, and would catch any
+day a chunk missed), and realisation and the audit run once at the end.
+
+Why one writer: DuckDB allows one writing process at a time, and Dask workers without a shared
+Prefect server would each start their own; workers therefore never open the store.
+
+Parametric fits (``nss``) start every chunk from the last stored fit before the range, not from the
+previous chunk's last day as ``afterward build`` does, so chunks stay independent; the other
+methods give the same rows either way.
+"""
+
+from __future__ import annotations
+
+import contextlib
+import time
+from collections.abc import Callable, Iterator
+from dataclasses import dataclass, field
+
+import numpy as np
+import pandas as pd
+from prefect import flow, get_run_logger, task
+from prefect.artifacts import create_table_artifact
+from prefect.cache_policies import NO_CACHE
+from prefect.futures import as_completed
+from prefect.utilities.annotations import quote
+
+from flows import build_step
+from flows.daily import _retry_condition, check_quotes, realize_forwards, refresh_audit
+from pipeline.checks import curve_shape_checks
+from pipeline.config import Config, CurveConfig, load_config
+from pipeline.curves import build_curves
+from pipeline.forwards import forward_surface, zero_rate_table
+from warehouse.connect import writer
+from warehouse.frames import QuotePanel, read_frame, read_quote_panel
+
+__all__ = [
+    "BackfillSummary",
+    "ChunkJob",
+    "ChunkResult",
+    "backfill",
+    "compute_chunk",
+    "local_cluster",
+    "make_local_cluster",
+    "plan_chunks",
+    "progress_hook",
+    "task_runner_for",
+    "write_chunk",
+]
+
+CHUNK_DAYS = 750
+
+_progress: Callable[[str, int, int], None] | None = None
+
+
+@contextlib.contextmanager
+def progress_hook(fn: Callable[[str, int, int], None] | None) -> Iterator[None]:
+    """Within the block, ``fn(stage, done, total)`` hears how many days the writer has stored."""
+    global _progress
+    old, _progress = _progress, fn
+    try:
+        yield
+    finally:
+        _progress = old
+
+
+def _report(stage: str, done: int, total: int) -> None:
+    if _progress is not None:
+        _progress(stage, done, total)
+
+
+# --- planning (flow process, reads the store) ---------------------------------------------------
+
+@dataclass(frozen=True)
+class ChunkJob:
+    """Everything a worker needs to build a chunk of one curve's days (no store access).
+
+    ``as_of`` ``(D,)`` datetime64[D]; ``rates`` ``(D, T)`` decimals as quoted (NaN = missing) for
+    ``tenors``; ``recorded_at`` ``(D,)`` the latest recorded_at of each day's quotes; ``warm`` the
+    starting parameters of a parametric fit (or None).
+    """
+
+    curve: str
+    index: int
+    config: CurveConfig
+    method: str
+    scenario: str
+    tenors: tuple[str, ...]
+    as_of: np.ndarray
+    rates: np.ndarray
+    recorded_at: np.ndarray
+    warm: np.ndarray | None = None
+
+    @property
+    def days(self) -> int:
+        return len(self.as_of)
+
+
+@dataclass
+class ChunkResult:
+    """A built chunk: per-day ``ok`` and the frames the build step's writer stores.
+
+    ``zeros``: :func:`pipeline.forwards.zero_rate_table` rows; ``forwards``:
+    :func:`pipeline.forwards.forward_surface` rows; ``shape``: curve-shape findings (or None);
+    ``params``: fitted parameters of the days built (parametric methods, else None).
+    """
+
+    curve: str
+    index: int
+    method: str
+    scenario: str
+    as_of: np.ndarray
+    recorded_at: np.ndarray
+    ok: np.ndarray
+    zeros: pd.DataFrame
+    forwards: pd.DataFrame
+    shape: pd.DataFrame | None
+    params: np.ndarray | None
+    reasons: dict[str, int] = field(default_factory=dict)
+    seconds: float = 0.0
+
+
+def _due_days(con, name: str, c: CurveConfig, scenario: str, first: str | None, last: str | None,  # noqa: ANN001
+              rebuild: bool) -> QuotePanel:
+    """The days of ``name`` in the range that need a build, as a quote panel (the build step's rule)."""
+    panel = read_quote_panel(con, name, list(c.tenor_labels), first, last)
+    if not len(panel):
+        return panel
+    held = read_frame(con, "SELECT as_of FROM held_days WHERE curve = ?", [name])
+    held_days = held["as_of"].to_numpy().astype("datetime64[D]") if len(held) else np.array([], "M8[D]")
+    todo = ~np.isin(panel.as_of, held_days)
+    if not rebuild:
+        built = read_frame(con, "SELECT as_of, quotes_as_of FROM built_day WHERE curve = ? AND scenario = ?",
+                           [name, scenario])
+        if len(built):
+            stamp = pd.Series(built["quotes_as_of"].to_numpy().astype("datetime64[us]"),
+                              index=built["as_of"].to_numpy().astype("datetime64[D]"))
+            prev = stamp.reindex(panel.as_of).to_numpy()
+            todo &= np.isnat(prev) | (panel.recorded_at > prev)
+    return panel.select(todo)
+
+
+def plan_chunks(cfg: Config, first: str | None = None, last: str | None = None, chunk_days: int = CHUNK_DAYS,
+                rebuild: bool = False, curve: str | None = None) -> list[ChunkJob]:
+    """Read each curve's quotes for ``[first, last]`` once and cut the days due into chunks."""
+    jobs: list[ChunkJob] = []
+    names = [curve] if curve else list(cfg.curves)
+    with writer(cfg.store_path) as con:
+        for name in names:
+            c = cfg.curve(name)
+            scenario = build_step.scenario_name(c, None)
+            due = _due_days(con, name, c, scenario, first, last, rebuild)
+            warm = build_step._last_params(con, name, scenario) if c.interpolation == "nss" else None
+            for k, start in enumerate(range(0, len(due), chunk_days)):
+                sl = slice(start, start + chunk_days)
+                jobs.append(ChunkJob(name, k, c, c.interpolation, scenario, tuple(due.tenors), due.as_of[sl],
+                                     due.rates[sl], due.recorded_at[sl], warm))
+    return jobs
+
+
+# --- computing (any process, pure) --------------------------------------------------------------
+
+def compute_chunk(job: ChunkJob) -> ChunkResult:
+    """Build one chunk's curves, zero rates at the quoted and forward tenors, forward surface and
+    curve-shape findings, exactly as the build step does for a chunk. Pure: no store, no Prefect.
+
+    Rates are decimals in the curve's own compounding and day count (``*_cc``: continuous).
+    """
+    t = time.perf_counter()
+    c = job.config
+    cs = build_curves(job.as_of, list(job.tenors), job.rates, c, method=job.method, warm_start=job.warm)
+    ok = np.asarray(cs.ok, dtype=bool)
+    reasons: dict[str, int] = {}
+    for r in (cs.reason[i] for i in np.flatnonzero(~ok)):
+        reasons[r] = reasons.get(r, 0) + 1
+    zero_tenors = sorted(set(c.tenors) | set(c.forward_tenors))
+    zeros = zero_rate_table(cs, zero_tenors, c)
+    fwd = forward_surface(cs, c)
+    shape = None
+    if ok.any():
+        grid_times = build_step._grid_times(max(x.approx_days for x in c.tenors) / 365.25)
+        grid = np.tile(grid_times, (len(ok), 1))
+        shape = curve_shape_checks(cs.as_of[ok], grid[ok], cs.discount(grid)[ok], c)
+    params = cs.params[ok] if cs.params is not None else None
+    return ChunkResult(job.curve, job.index, job.method, job.scenario, job.as_of, job.recorded_at, ok, zeros, fwd,
+                       shape, params, reasons, time.perf_counter() - t)
+
+
+@task(name="compute chunk", cache_policy=NO_CACHE)
+def compute_chunk_task(job: ChunkJob) -> ChunkResult:
+    """A Prefect task around :func:`compute_chunk` (runs on any worker; never opens the store)."""
+    return compute_chunk(job)
+
+
+# --- writing (flow process only) ----------------------------------------------------------------
+
+def _empty_counts() -> dict:
+    return {"days_built": 0, "failed": 0, "forwards": 0, "chunks": 0, "compute_seconds": 0.0, "fetch_seconds": 0.0,
+            "write_seconds": 0.0, "reasons": {}}
+
+
+def write_chunk(con, cfg: Config, result: ChunkResult, version: str) -> None:  # noqa: ANN001
+    """Store one computed chunk in one transaction through the build step's writer.
+
+    Every day of the chunk loses its previous build of the same scenario; the days built (``ok``)
+    get their zero rates, forwards, fits and shape findings.
+    """
+    c = cfg.curve(result.curve)
+    part = QuotePanel(result.as_of, list(c.tenor_labels), np.empty((len(result.as_of), 0)), result.recorded_at)
+    build_step._write_chunk(con, result.curve, result.scenario, result.method, version, part, result.ok,
+                            result.zeros, result.forwards, result.shape, result.params, set(c.tenor_labels))
+
+
+@task(name="write chunks", cache_policy=NO_CACHE, retries=2, retry_condition_fn=_retry_condition,
+      retry_delay_seconds=[1, 4])
+def write_chunks(cfg: Config, futures: list, total_days: int) -> dict[str, dict]:
+    """The one writer: store each chunk as its computation finishes; returns counts per curve.
+
+    Runs in the flow's own process (called, not submitted), so only this process opens the store.
+    """
+    version = build_step.code_version()
+    per_curve: dict[str, dict] = {}
+    done = 0
+    _report("build", 0, total_days)
+    with writer(cfg.store_path) as con:
+        for fut in as_completed(futures):
+            t = time.perf_counter()
+            res: ChunkResult = fut.result()
+            t_fetched = time.perf_counter()
+            write_chunk(con, cfg, res, version)
+            info = per_curve.setdefault(res.curve, _empty_counts())
+            info["fetch_seconds"] += t_fetched - t
+            info["write_seconds"] += time.perf_counter() - t_fetched
+            info["days_built"] += int(res.ok.sum())
+            info["failed"] += int((~res.ok).sum())
+            info["forwards"] += len(res.forwards)
+            info["chunks"] += 1
+            info["compute_seconds"] += res.seconds
+            for r, n in res.reasons.items():
+                info["reasons"][r] = info["reasons"].get(r, 0) + n
+            done += len(res.as_of)
+            _report("build", done, total_days)
+    return per_curve
+
+
+@task(name="settle build", cache_policy=NO_CACHE, retries=2, retry_condition_fn=_retry_condition,
+      retry_delay_seconds=[1, 4])
+def settle_build(cfg: Config, first: str | None, last: str | None) -> build_step.BuildSummary:
+    """The build step once over the range: withdraws builds of held-back days; builds any day left."""
+    return build_step.run_build(cfg, None, first, last)
+
+
+# --- the flow -----------------------------------------------------------------------------------
+
+@dataclass
+class BackfillSummary:
+    """What one backfill did: days planned and built per curve, outcomes realised, seconds per stage."""
+
+    first: str | None
+    last: str | None
+    chunks: int = 0
+    days_planned: int = 0
+    curves: dict[str, dict] = field(default_factory=dict)
+    caught_up: int = 0
+    realized: int = 0
+    audited: list[str] = field(default_factory=list)
+    seconds: dict[str, float] = field(default_factory=dict)
+    work_seconds: float = 0.0
+
+    @property
+    def days_built(self) -> int:
+        return sum(c["days_built"] for c in self.curves.values())
+
+    @property
+    def forwards_built(self) -> int:
+        return sum(c["forwards"] for c in self.curves.values())
+
+    def table(self) -> list[dict]:
+        """One row per curve, JSON-ready (for the artifact)."""
+        return [{"curve": name, "days_built": int(c["days_built"]), "days_failed": int(c["failed"]),
+                 "forwards_built": int(c["forwards"]), "chunks": int(c["chunks"]),
+                 "outcomes_realized": int(c.get("realized", 0)), "first_day": self.first or "",
+                 "last_day": self.last or ""} for name, c in self.curves.items()]
+
+
+@flow(name="afterward-backfill", log_prints=False)
+def backfill(config_path: str, first: str | None = None, last: str | None = None, chunk_days: int = CHUNK_DAYS,
+             rebuild: bool = False) -> BackfillSummary:
+    """Build and realise every day of ``[first, last]`` (ISO dates; None: open-ended) in parallel chunks.
+
+    Runs the checks first (a day held back by a reject finding is not built), then the chunks on
+    the flow's task runner, one writer in this process, the build step once over the range,
+    realisation and the audit.
+    """
+    t0 = time.perf_counter()
+    cfg = load_config(config_path)
+    log = get_run_logger()
+    summary = BackfillSummary(first, last)
+
+    def lap(name: str, since: float) -> float:
+        now = time.perf_counter()
+        summary.seconds[name] = round(now - since, 4)
+        return now
+
+    t = t0
+    check_quotes(cfg, first, last)
+    t = lap("check", t)
+    jobs = plan_chunks(cfg, first, last, chunk_days, rebuild)
+    summary.chunks = len(jobs)
+    summary.days_planned = sum(j.days for j in jobs)
+    t = lap("plan", t)
+    log.info("backfill %s..%s: %d day(s) due in %d chunk(s)", first, last, summary.days_planned, len(jobs))
+    # the costliest chunks first, so the slowest curve does not start last (a par curve needs a
+    # bootstrap: several times the work of a curve quoted in zero rates)
+    order = sorted(jobs, key=lambda j: (-j.days * len(j.tenors) * (4 if j.config.quote == "par" else 1), j.curve,
+                                        j.index))
+    futures = [compute_chunk_task.submit(j) for j in order]
+    per_curve = write_chunks(cfg, quote(futures), summary.days_planned)
+    for name in cfg.curves:
+        summary.curves[name] = per_curve.get(name, _empty_counts())
+    t = lap("build", t)
+    settled = settle_build(cfg, first, last)
+    summary.caught_up = settled.days_built
+    for name, info in settled.curves.items():
+        summary.curves[name]["days_built"] += info["days_built"]
+        summary.curves[name]["forwards"] += info["forwards"]
+        summary.curves[name]["withdrawn"] = info.get("withdrawn", 0)
+    if summary.caught_up:
+        log.warning("the build step built %d day(s) the chunks did not", summary.caught_up)
+    t = lap("settle", t)
+    _report("realize", 0, 1)
+    realized = realize_forwards(cfg)
+    summary.realized = realized.realized
+    for name, info in realized.curves.items():
+        summary.curves.setdefault(name, {})["realized"] = info["realized"]
+    t = lap("realize", t)
+    _report("audit", 0, 1)
+    summary.audited = refresh_audit(cfg)
+    t = lap("audit", t)
+    summary.work_seconds = round(time.perf_counter() - t0, 4)
+    create_table_artifact(table=summary.table(), key="afterward-backfill",
+                          description=f"afterward backfill {first or 'start'}..{last or 'end'}: "
+                                      f"{summary.days_built} day(s) built, {summary.realized} outcome(s) realised")
+    log.info("backfill done: %d day(s) built, %d forwards, %d outcomes realised in %.1f s", summary.days_built,
+             summary.forwards_built, summary.realized, summary.work_seconds)
+    return summary
+
+
+# --- task runners -------------------------------------------------------------------------------
+
+def _warm_up() -> None:
+    """Import the chunk computation's modules on a worker before the first chunk arrives."""
+    import flows.backfill  # noqa: F401
+    import pipeline.checks  # noqa: F401
+    import pipeline.curves  # noqa: F401
+    import pipeline.forwards  # noqa: F401
+
+
+# Dask's nanny sets MALLOC_TRIM_THRESHOLD_=65536 in its workers by default; with it, glibc hands
+# memory back to the system after every large numpy temporary and the chunk computation runs about
+# three times slower (measured here). Keep the one-thread BLAS settings, drop the trim threshold.
+_WORKER_ENVIRON = {"OMP_NUM_THREADS": 1, "MKL_NUM_THREADS": 1, "OPENBLAS_NUM_THREADS": 1}
+
+
+def make_local_cluster(n_workers: int, **kwargs: object):  # noqa: ANN201
+    """A ``distributed.LocalCluster`` of ``n_workers`` processes, one thread each (no dashboard),
+    whose workers keep glibc's default memory trimming (see ``_WORKER_ENVIRON``)."""
+    import dask
+    from distributed import LocalCluster
+
+    options = {"threads_per_worker": 1, "processes": True, "dashboard_address": None, **kwargs}
+    with dask.config.set({"distributed.nanny.pre-spawn-environ": dict(_WORKER_ENVIRON)}):
+        return LocalCluster(n_workers=n_workers, **options)
+
+
+@contextlib.contextmanager
+def local_cluster(workers: int) -> Iterator[object]:
+    """A local Dask cluster of ``workers`` processes, one thread each, modules imported on each worker."""
+    from distributed import Client
+
+    with make_local_cluster(workers) as cluster:
+        with Client(cluster) as client:
+            client.run(_warm_up)
+        yield cluster
+
+
+def task_runner_for(workers: int = 1, scheduler: str | None = None):  # noqa: ANN201
+    """The task runner for the chunks: a Dask cluster at ``scheduler``, a new local Dask cluster of
+    ``workers`` processes (``workers > 1``), or one thread in this process."""
+    if scheduler:
+        from prefect_dask import DaskTaskRunner
+
+        return DaskTaskRunner(address=scheduler)
+    if workers > 1:
+        from prefect_dask import DaskTaskRunner
+
+        return DaskTaskRunner(cluster_class=make_local_cluster,
+                              cluster_kwargs={"n_workers": workers, "threads_per_worker": 1, "processes": True})
+    from prefect.task_runners import ThreadPoolTaskRunner
+
+    return ThreadPoolTaskRunner(max_workers=1)
