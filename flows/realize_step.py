@@ -89,21 +89,33 @@ def run_realize(cfg: Config, curve: str | None = None) -> RealizeSummary:
 
 
 def _supersede_stale(con, curve: str, now) -> int:  # noqa: ANN001
-    """Stamp superseded the outcomes whose days were rebuilt, withdrawn, or overtaken; returns the count."""
+    """Stamp superseded the outcomes whose days were rebuilt, withdrawn, or overtaken; returns the count.
+
+    Written as anti-joins against the built days plus a join with only the days built since the
+    earliest current outcome: a correlated EXISTS with an OR took seconds a run at 50 years.
+    """
     before = fetch_value(con, "SELECT count(*) FROM outcome WHERE curve = ? AND superseded_at IS NULL", [curve])
     con.execute(
         """
-        UPDATE outcome AS o SET superseded_at = ?
-        WHERE o.curve = ? AND o.superseded_at IS NULL AND (
-            NOT EXISTS (SELECT 1 FROM built_day b WHERE b.curve = o.curve AND b.scenario = 'official'
-                        AND b.as_of = o.observed_on)
-         OR NOT EXISTS (SELECT 1 FROM built_day b WHERE b.curve = o.curve AND b.scenario = 'official'
-                        AND b.as_of = o.as_of)
-         OR EXISTS (SELECT 1 FROM built_day b WHERE b.curve = o.curve AND b.scenario = 'official'
-                    AND b.built_at > o.realized_at
-                    AND (b.as_of = o.as_of OR (b.as_of >= o.target_date AND b.as_of <= o.observed_on))))
+        UPDATE outcome AS o SET superseded_at = $now
+        FROM (
+            WITH built AS (SELECT as_of, built_at FROM built_day WHERE curve = $curve AND scenario = 'official'),
+                 cur AS (SELECT as_of, start_months, tenor_months, target_date, observed_on, realized_at
+                         FROM outcome WHERE curve = $curve AND superseded_at IS NULL),
+                 fresh AS (SELECT as_of, built_at FROM built WHERE built_at > (SELECT min(realized_at) FROM cur))
+            SELECT as_of, start_months, tenor_months FROM cur
+            WHERE as_of NOT IN (SELECT as_of FROM built) OR observed_on NOT IN (SELECT as_of FROM built)
+            UNION
+            SELECT c.as_of, c.start_months, c.tenor_months FROM cur c JOIN fresh b
+                ON b.built_at > c.realized_at AND b.as_of = c.as_of
+            UNION
+            SELECT c.as_of, c.start_months, c.tenor_months FROM cur c JOIN fresh b
+                ON b.built_at > c.realized_at AND b.as_of >= c.target_date AND b.as_of <= c.observed_on
+        ) AS s
+        WHERE o.curve = $curve AND o.superseded_at IS NULL AND o.as_of = s.as_of
+          AND o.start_months = s.start_months AND o.tenor_months = s.tenor_months
         """,
-        [now, curve],
+        {"now": now, "curve": curve},
     )
     after = fetch_value(con, "SELECT count(*) FROM outcome WHERE curve = ? AND superseded_at IS NULL", [curve])
     return int((before or 0) - (after or 0))
