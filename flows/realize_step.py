@@ -78,8 +78,15 @@ def run_realize(cfg: Config, curve: str | None = None) -> RealizeSummary:
                                 "CAST(target_date AS DATE), CAST(observed_on AS DATE), forward_rate, realized_rate, "
                                 "spot_rate, error_bp, rw_error_bp, ?, NULL FROM rows ORDER BY as_of", [now])
                         info["realized"] = len(out)
-                info["pending"] = int(fetch_value(con, "SELECT count(*) FROM pending_forwards WHERE curve = ?",
-                                                  [name]) or 0)
+                    # pending = the candidates left unmatched plus every forward whose target lies after
+                    # the last observed day (it cannot have an outcome): the count of the
+                    # pending_forwards view without a second anti-join over the whole record
+                    later = fetch_value(con, "SELECT count(*) FROM forwards WHERE curve = ? "
+                                             "AND start_date > CAST(? AS DATE)", [name, str(days[-1])])
+                    info["pending"] = len(cand) - info["realized"] + int(later or 0)
+                else:
+                    info["pending"] = int(fetch_value(con, "SELECT count(*) FROM pending_forwards WHERE curve = ?",
+                                                      [name]) or 0)
                 con.execute("COMMIT")
             except BaseException:
                 con.execute("ROLLBACK")
