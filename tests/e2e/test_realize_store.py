@@ -208,3 +208,32 @@ def test_a_day_restated_into_a_reject_is_withdrawn_and_its_outcomes_move(flat, t
     np.testing.assert_allclose(moved["realized_rate"], float(levels.loc[pd.Timestamp(nxt)]), rtol=0, atol=1e-13)
     kept = p.value("SELECT count(*) FROM outcome WHERE superseded_at IS NOT NULL")
     assert kept == len(on_day) + len(own)
+
+
+def test_a_late_day_nearer_the_target_re_derives_and_realises_gap_forwards(flat, tmp_path):
+    """A day of the gap loaded late: outcomes that had to use the first day after the gap move to it
+    (the first observation on or after the target), and forwards pending in the gap are realised;
+    the realize summary's pending count equals the pending_forwards view."""
+    p = clone_project(flat[0], tmp_path / "late")
+    levels = flat[1].copy()
+    late = np.datetime64("2030-09-17")
+    levels.loc[pd.Timestamp(late)] = 0.0301
+    levels = levels.sort_index()
+    f = write_wide_csv(p.root / "flat_late_2030-09-17.csv", [late], FLAT_TENORS,
+                       np.full((1, len(FLAT_TENORS)), 0.0301), "%.10f")
+    load_files(p.cfg, [f])
+    run_checks(p.cfg)
+    assert run_build(p.cfg).curves["flat"]["days_built"] == 1
+    s = run_realize(p.cfg).curves["flat"]
+    fwd = p.sql("SELECT * FROM forwards")
+    fwd["as_of"] = as_days(fwd["as_of"])
+    expected = expected_observation(fwd, levels.index.to_numpy().astype("datetime64[D]"), FLAT_HOLIDAYS, TOLERANCE)
+    o = p.sql("SELECT as_of, start_months, tenor_months, observed_on FROM outcomes")
+    o["as_of"], o["observed_on"] = as_days(o["as_of"]), as_days(o["observed_on"])
+    want = expected[expected["kind"] == "realised"]
+    m = want.merge(o, on=KEY, how="outer", suffixes=("", "_got"), indicator=True)
+    assert (m["_merge"] == "both").all()
+    assert (m["observed_on"] == m["observed_on_got"]).all()
+    assert (m["observed_on"] == late).sum() > 0
+    assert s["re_derived"] > 0 and s["pending"] == p.value("SELECT count(*) FROM pending_forwards")
+    assert s["pending"] == int((expected["kind"] != "realised").sum())
