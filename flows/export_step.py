@@ -5,6 +5,7 @@ Layout under the target folder ``DIR``::
     DIR/forwards/curve=govt/year=2024/data_0.parquet
     DIR/audit_summary/curve=govt/data_0.parquet      (no date grain: by curve only)
     DIR/loads/data.parquet                           (no curve: one file)
+    DIR/findings/empty.parquet                       (a view with no rows: its schema, no rows)
     DIR/_afterward_export.json                       (what was written, row counts, when)
 
 ``year`` is the calendar year of each view's date column (``as_of``; ``first_day`` for
@@ -85,6 +86,9 @@ def export_views(cfg: Config, to_dir: Path) -> list[Path]:
                     if counts[view]:
                         con.execute(f"COPY ({select} ORDER BY ALL) TO {_sql_string(out)} (FORMAT parquet, "
                                     f"PARTITION_BY ({', '.join(parts)}), WRITE_PARTITION_COLUMNS true)")
+                    else:  # no partition to write: one empty file keeps the schema readable
+                        con.execute(f"COPY ({select} LIMIT 0) TO {_sql_string(out / 'empty.parquet')} "
+                                    "(FORMAT parquet)")
                     written.append(target / view)
                 else:
                     (staging / view).mkdir()

@@ -1,0 +1,108 @@
+"""The backfill flow: chunks computed on a 2-worker local Dask cluster write exactly the rows that a
+single-process run writes, and exactly the rows of the build step run without Prefect."""
+
+from __future__ import annotations
+
+import shutil
+
+import pandas as pd
+import pytest
+from rich.console import Console
+
+from flows.backfill import backfill, compute_chunk, plan_chunks, task_runner_for
+from flows.build_step import run_build
+from flows.realize_step import run_realize
+from flows.steps import load_files
+from pipeline.config import load_config
+from warehouse.connect import reader
+
+pytestmark = [
+    pytest.mark.timeout(300),
+    pytest.mark.filterwarnings("ignore:unclosed <socket.socket:ResourceWarning"),
+    pytest.mark.filterwarnings("ignore:Exception ignored in. <socket.socket:pytest.PytestUnraisableExceptionWarning"),
+    # distributed's shutdown of a local cluster closes its comms while a heartbeat may be in flight
+    pytest.mark.filterwarnings("ignore::pytest.PytestUnhandledThreadExceptionWarning"),
+]
+
+ZERO_COLS = "curve, as_of, tenor, maturity_date, year_fraction, zero_rate, zero_rate_cc, discount_factor"
+FWD_COLS = "curve, as_of, start_months, tenor_months, start_date, end_date, forward_rate, forward_rate_cc"
+OUT_COLS = "curve, as_of, start_months, tenor_months, target_date, observed_on, forward_rate, realized_rate"
+
+
+def rows(cfg, view: str, cols: str) -> pd.DataFrame:  # noqa: ANN001
+    with reader(cfg.store_path) as con:
+        return con.sql(f"SELECT {cols} FROM {view} ORDER BY {cols}").to_arrow_table().to_pandas()
+
+
+@pytest.fixture(scope="module")
+def loaded_store(demo_files, tmp_path_factory):  # noqa: ANN001, ANN201
+    """Three demo years loaded (no build yet): the config path of a template project."""
+    from pipeline.demo_market import demo_config_toml
+
+    root = tmp_path_factory.mktemp("backfill-template")
+    (root / "afterward.toml").write_text(demo_config_toml(), encoding="utf-8")
+    cfg = load_config(root / "afterward.toml")
+    files = [p for p in demo_files.files if any(f"_{y}-" in p.name for y in (2011, 2012, 2013))]
+    outcomes = load_files(cfg, files)
+    assert {o.status for o in outcomes} == {"loaded"}
+    return root
+
+
+def copy_project(template, tmp_path, name: str):  # noqa: ANN001, ANN201
+    shutil.copytree(template, tmp_path / name)
+    return load_config(tmp_path / name / "afterward.toml")
+
+
+def test_a_two_worker_dask_backfill_writes_exactly_the_single_process_rows(loaded_store, tmp_path):
+    from flows.jobs import cli_backfill
+
+    dask_cfg = copy_project(loaded_store, tmp_path, "dask")
+    single_cfg = copy_project(loaded_store, tmp_path, "single")
+    plain_cfg = copy_project(loaded_store, tmp_path, "plain")
+
+    # the command line's path: a local cluster of 2 worker processes, started beside Prefect
+    console = Console(record=True, width=200)
+    assert cli_backfill(dask_cfg.path, None, None, 2, None, console) == 0, console.export_text()
+    assert "Dask cluster at tcp://" in console.export_text()
+    # one process, one worker thread, small chunks (so the chunking differs as well)
+    single = backfill.with_options(task_runner=task_runner_for(1))(config_path=str(single_cfg.path), chunk_days=97)
+    assert single.chunks > 4
+    # the build and realize steps without Prefect
+    run_build(plain_cfg)
+    run_realize(plain_cfg)
+
+    for view, cols in (("zero_rates", ZERO_COLS), ("forwards", FWD_COLS), ("outcomes", OUT_COLS)):
+        reference = rows(plain_cfg, view, cols)
+        assert len(reference) > 0
+        pd.testing.assert_frame_equal(rows(dask_cfg, view, cols), reference, check_exact=True, obj=f"{view} dask")
+        pd.testing.assert_frame_equal(rows(single_cfg, view, cols), reference, check_exact=True,
+                                      obj=f"{view} single")
+    assert single.forwards_built == len(rows(plain_cfg, "forwards", "curve"))
+    assert single.caught_up == 0  # the chunks left nothing for the build step to do
+
+
+def test_a_backfill_builds_only_its_range_and_a_rerun_has_nothing_to_do(loaded_store, tmp_path):
+    cfg = copy_project(loaded_store, tmp_path, "range")
+    run = backfill.with_options(task_runner=task_runner_for(1))
+    first = run(config_path=str(cfg.path), first="2012-03-01", last="2012-06-30")
+    with reader(cfg.store_path) as con:
+        lo, hi, n = con.execute("SELECT min(as_of), max(as_of), count(DISTINCT as_of) FROM zero_rates "
+                                "WHERE curve = 'swap'").fetchone()
+        [(days,)] = con.execute("SELECT count(DISTINCT as_of) FROM quotes WHERE curve = 'swap' "
+                                "AND as_of BETWEEN '2012-03-01' AND '2012-06-30'").fetchall()
+    assert str(lo) >= "2012-03-01" and str(hi) <= "2012-06-30"
+    assert n == days == first.curves["swap"]["days_built"]
+    again = run(config_path=str(cfg.path), first="2012-03-01", last="2012-06-30")
+    assert again.days_planned == 0 and again.days_built == 0
+
+
+def test_a_chunk_is_pure_computation_on_what_the_plan_read(loaded_store, tmp_path):
+    """The same chunk computed twice gives identical frames: nothing in it depends on the store."""
+    cfg = copy_project(loaded_store, tmp_path, "pure")
+    jobs = plan_chunks(cfg, "2013-01-01", "2013-02-28", chunk_days=10)
+    assert {j.curve for j in jobs} == set(cfg.curves)
+    assert all(j.days <= 10 for j in jobs)
+    a, b = compute_chunk(jobs[0]), compute_chunk(jobs[0])
+    pd.testing.assert_frame_equal(a.forwards, b.forwards)
+    c = cfg.curve(jobs[0].curve)
+    assert len(a.forwards) == int(a.ok.sum()) * len(c.forward_starts) * len(c.forward_tenors)
