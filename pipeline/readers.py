@@ -138,7 +138,8 @@ def _decode(data: bytes) -> str:
     if data.startswith(b"\xef\xbb\xbf"):
         data = data[3:]
     elif data.startswith((b"\xff\xfe", b"\xfe\xff")):
-        return data.decode("utf-16")
+        # a truncated or odd-length UTF-16 file: the broken tail becomes U+FFFD and fails as a cell
+        return data.decode("utf-16", errors="replace")
     try:
         return data.decode("utf-8")
     except UnicodeDecodeError:
