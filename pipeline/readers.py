@@ -77,7 +77,13 @@ def to_decimal(values: np.ndarray, units: str) -> np.ndarray:
     not 0.040999999999999995 (far below any quoted precision: 1e-10 bp)."""
     divisor = UNIT_DIVISORS[units]
     out = np.asarray(values, dtype=float) / divisor
-    return out if divisor == 1.0 else np.round(out, 14)
+    if divisor == 1.0:
+        return out
+    # rounding scales by 1e14 first, which overflows above ~1.8e294: such values are kept unrounded
+    # (and later refused as out of range with their true size, not as inf)
+    with np.errstate(over="ignore", invalid="ignore"):
+        rounded = np.round(out, 14)
+    return np.where(np.isfinite(rounded), rounded, out)
 
 
 _EMPTY_ROWS: pd.DataFrame | None = None
