@@ -250,24 +250,36 @@ def _xlsx_grid(data: bytes, limits: ReadLimits) -> _Grid | str:
 
     try:
         wb = openpyxl.load_workbook(io.BytesIO(data), read_only=True, data_only=True)
-        ws = wb.worksheets[0]
-        rows = [list(r) for r in ws.iter_rows(values_only=True)]
-        wb.close()
+        try:
+            return _sheet_grid(wb.worksheets[0], limits)
+        finally:
+            wb.close()
     except Exception as exc:  # openpyxl surfaces many error types for malformed workbooks
         return f"not a readable .xlsx file ({type(exc).__name__}: {str(exc).splitlines()[0][:200] if str(exc) else ''})"
+
+
+def _sheet_grid(ws, limits: ReadLimits) -> _Grid | str:  # noqa: ANN001 - an openpyxl read-only worksheet
+    # The sheet's declared size is the file's claim, not a fact: a 5 KB workbook can declare
+    # A1:XFD1048576 and openpyxl would pad every row to it (17 G cells). Ignore it, find the header
+    # with rows cut at max_columns + 1 cells, then read data rows only as wide as the header.
+    ws.reset_dimensions()
+    header: list[str] | None = None
     first = 0
-    while first < len(rows) and not any(_cell_text(c).strip() for c in rows[first]):
-        first += 1
-    if first == len(rows):
+    for i, r in enumerate(ws.iter_rows(max_col=limits.max_columns + 1, values_only=True), start=1):
+        if any(_cell_text(c).strip() for c in r):
+            header, first = [_cell_text(c).strip() for c in r], i
+            break
+    if header is None:
         return "empty workbook: no header and no rows"
-    header = [_cell_text(c).strip() for c in rows[first]]
     while header and not header[-1]:
         header.pop()
     if len(header) > limits.max_columns:
-        return f"{len(header):,} columns; at most {limits.max_columns:,} are read"
+        return f"more than {limits.max_columns:,} columns; at most {limits.max_columns:,} are read"
     records, lines, raws = [], [], []
-    for i, r in enumerate(rows[first + 1:], start=first + 2):
-        cells = [_cell_text(c) for c in r[: len(header)]]
+    for i, r in enumerate(ws.iter_rows(min_row=first + 1, max_col=len(header), values_only=True), start=first + 1):
+        if all(c is None for c in r):
+            continue
+        cells = [_cell_text(c) for c in r]
         if not any(c.strip() for c in cells):
             continue
         records.append(cells)
