@@ -47,6 +47,11 @@ class ReadLimits:
     max_field_chars: int = 10_000
     max_xlsx_uncompressed: int = 512 * 1024 * 1024
     max_xlsx_ratio: float = 200.0
+    max_lines: int = 2_000_000          # data lines (rows of a sheet or Parquet file); a longer file is refused
+
+
+def _too_many_lines(limits: ReadLimits) -> str:
+    return f"more than {limits.max_lines:,} data lines; at most {limits.max_lines:,} are read (split the file)"
 
 
 @dataclass
@@ -193,6 +198,8 @@ def _csv_grid(data: bytes, limits: ReadLimits) -> _Grid | str:
                 header = [c.strip() for c in record]
                 start = end + 1
                 continue
+            if len(records) >= limits.max_lines:
+                return _too_many_lines(limits)
             if any(len(c) > limits.max_field_chars for c in record) or len(record) > limits.max_columns:
                 records.append(["\x00too-long"])
             else:
@@ -224,6 +231,12 @@ def _parquet_grid(data: bytes, limits: ReadLimits) -> _Grid | str:
     import pyarrow.parquet as pq
 
     try:
+        # the footer's counts first: a small file can declare (and RLE-pack) billions of rows
+        meta = pq.ParquetFile(io.BytesIO(data)).metadata
+        if meta.num_columns > limits.max_columns:
+            return f"{meta.num_columns:,} columns; at most {limits.max_columns:,} are read"
+        if meta.num_rows > limits.max_lines:
+            return _too_many_lines(limits)
         table = pq.read_table(io.BytesIO(data))
     except Exception as exc:  # pyarrow raises several unrelated types for corrupt files
         return f"not a readable Parquet file ({type(exc).__name__}: {str(exc).splitlines()[0][:200]})"
@@ -282,6 +295,8 @@ def _sheet_grid(ws, limits: ReadLimits) -> _Grid | str:  # noqa: ANN001 - an ope
         cells = [_cell_text(c) for c in r]
         if not any(c.strip() for c in cells):
             continue
+        if len(records) >= limits.max_lines:
+            return _too_many_lines(limits)
         records.append(cells)
         lines.append(i)
         raws.append(",".join(cells))
