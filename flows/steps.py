@@ -8,6 +8,8 @@ Computation lives in ``pipeline``; storage in ``warehouse``; a step only wires t
 from __future__ import annotations
 
 import hashlib
+import os
+import stat
 from collections.abc import Callable, Iterable, Sequence
 from pathlib import Path
 
@@ -15,7 +17,7 @@ import pandas as pd
 
 from pipeline.config import Config
 from pipeline.intake import load_findings, prepare_many, route_curve, validate_intakes
-from pipeline.readers import ReadResult, read_rate_file
+from pipeline.readers import ReadLimits, ReadResult, read_rate_file
 from warehouse.connect import writer
 from warehouse.loads import FileBatch, Loader, LoadOutcome
 
@@ -28,10 +30,26 @@ class UserError(RuntimeError):
     """A mistake in what the user asked for; the message is one line."""
 
 
+def _read_regular_file(path: Path, max_bytes: int) -> bytes:
+    """The bytes of a regular file, at most ``max_bytes + 1`` of them (the reader refuses a longer one).
+
+    Opened without blocking and checked before reading: a named pipe would wait forever for a writer
+    and a link to a device such as /dev/zero would never end.
+    """
+    fd = os.open(path, os.O_RDONLY | getattr(os, "O_NONBLOCK", 0))
+    with os.fdopen(fd, "rb") as f:
+        mode = os.fstat(f.fileno()).st_mode
+        if stat.S_ISDIR(mode):
+            raise IsADirectoryError(path)
+        if not stat.S_ISREG(mode):
+            raise UserError(f"{path} is not a regular file (a pipe, device or socket); only files are read")
+        return f.read(max_bytes + 1)
+
+
 def _read(path: Path, cfg: Config, curve: str | None) -> tuple[dict, ReadResult, str | None]:
     """Read and route one file (no store access): its lineage fields, what was read, its refusal."""
     try:
-        data = path.read_bytes()
+        data = _read_regular_file(path, ReadLimits().max_bytes)
     except IsADirectoryError:
         raise UserError(f"{path} is a directory, not a rate file") from None
     except FileNotFoundError:
