@@ -189,10 +189,11 @@ def _csv_grid(data: bytes, limits: ReadLimits) -> _Grid | str:
     try:
         for record in reader:
             end = reader.line_num
+            if not any(c.strip() for c in record):
+                # a blank line (or one of bare delimiters) holds no quote: not a row, not a rejection
+                start = end + 1
+                continue
             if header is None:
-                if not any(c.strip() for c in record):
-                    start = end + 1
-                    continue
                 if len(record) > limits.max_columns:
                     return f"header has {len(record):,} columns; at most {limits.max_columns:,} are read"
                 header = [c.strip() for c in record]
