@@ -376,7 +376,10 @@ def make_local_cluster(n_workers: int, **kwargs: object):  # noqa: ANN201
     import dask
     from distributed import LocalCluster
 
-    options = {"threads_per_worker": 1, "processes": True, "dashboard_address": None, **kwargs}
+    # no dashboard; the scheduler's own HTTP endpoints on a free port rather than 8787, which another
+    # cluster on the machine may hold
+    options = {"threads_per_worker": 1, "processes": True, "dashboard_address": None,
+               "scheduler_kwargs": {"dashboard_address": ":0"}, **kwargs}
     with dask.config.set({"distributed.nanny.pre-spawn-environ": dict(_WORKER_ENVIRON)}):
         return LocalCluster(n_workers=n_workers, **options)
 
