@@ -116,7 +116,26 @@ _ALLOWED_STATEMENTS = {"SELECT", "EXPLAIN"}
 
 
 def _guard_sql(query: str) -> None:
+    import re
+
     import duckdb
+
+    def kind_of(st) -> str:  # noqa: ANN001 - a duckdb Statement
+        kind = str(st.type).rsplit(".", 1)[-1]
+        if kind != "EXPLAIN":
+            return kind
+        # EXPLAIN ANALYZE runs the statement it explains: what follows EXPLAIN [ANALYZE] [(options)]
+        # is judged as a statement of its own
+        m = re.match(r"^\s*(?:(?:--[^\n]*(?:\n|$)|/\*.*?\*/)\s*)*EXPLAIN\b\s*(?:ANALY[SZ]E\b\s*)?(?:\([^()]*\)\s*)?",
+                     st.query, flags=re.IGNORECASE | re.DOTALL)
+        try:
+            inner = duckdb.extract_statements(st.query[m.end():]) if m else []
+        except duckdb.Error:
+            inner = []
+        if len(inner) != 1:
+            return "EXPLAIN of an unrecognised form"
+        inner_kind = str(inner[0].type).rsplit(".", 1)[-1]
+        return "EXPLAIN" if inner_kind == "SELECT" else f"EXPLAIN {inner_kind}"
 
     try:
         statements = duckdb.extract_statements(query)
@@ -125,7 +144,7 @@ def _guard_sql(query: str) -> None:
     if not statements:
         raise _Exit("no SQL statement given", 2)
     for st in statements:
-        kind = str(st.type).rsplit(".", 1)[-1]
+        kind = kind_of(st)
         if kind not in _ALLOWED_STATEMENTS:
             raise _Exit(f"refused: {kind} statements are not allowed; 'afterward sql' is read-only "
                         "(queries only)", 2)
@@ -138,7 +157,11 @@ def sql(
     out: Annotated[Path | None, typer.Option("--out", help="Write the result to this file.")] = None,
     allow_files: Annotated[bool, typer.Option("--allow-files", help="Let the query read files.")] = False,
 ) -> None:
-    """Run an ad-hoc query on a read-only connection."""
+    """Run an ad-hoc query on a read-only connection.
+
+    Only queries run (SELECT and EXPLAIN of a SELECT). Without --allow-files a query reads files only
+    under the store's folder and the inbox folders; nothing can be installed, loaded or attached.
+    """
     from flows.output import write_result
 
     if fmt not in ("table", "csv", "json", "parquet"):
