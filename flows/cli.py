@@ -174,7 +174,14 @@ def sql(
     from warehouse.connect import reader
 
     cfg = _config()
-    with reader(cfg.store_path, external_access=allow_files) as con:
+    # without --allow-files, files are readable only under the store's folder and the inbox folders
+    # (never a whole home directory or filesystem root, should the store sit there)
+    folders: list[Path] = []
+    for folder in (cfg.store_path.parent, cfg.inbox, cfg.loaded, cfg.refused):
+        for p in (Path(os.path.abspath(folder)), Path(folder).resolve()):
+            if p != Path.home().resolve() and p.parent != p and p not in folders:
+                folders.append(p)
+    with reader(cfg.store_path, external_access=allow_files, allowed_directories=folders) as con:
         try:
             rel = con.sql(query)
             table = rel.to_arrow_table() if rel is not None else None

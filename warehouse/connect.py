@@ -10,7 +10,7 @@ from __future__ import annotations
 import os
 import re
 import time
-from collections.abc import Iterator
+from collections.abc import Iterator, Sequence
 from contextlib import contextmanager
 from pathlib import Path
 
@@ -51,14 +51,32 @@ def _default_wait() -> float:
         return 10.0
 
 
+def _sql_list(paths: Sequence[str | os.PathLike[str]]) -> str:
+    return "[" + ", ".join("'" + str(p).replace("'", "''") + "'" for p in paths) + "]"
+
+
+def _close_external_access(con: duckdb.DuckDBPyConnection, allowed: Sequence[str | os.PathLike[str]]) -> None:
+    # DuckDB takes allowed_directories only while external access is still on, and SET only after
+    # start-up; locking the configuration then stops a query from SETting any of it back
+    if allowed:
+        dirs = [str(d).rstrip("/") + "/" for d in allowed]    # a prefix match: /a/proj must not admit /a/proj2
+        con.execute(f"SET allowed_directories = {_sql_list(dirs)}")
+    con.execute("SET enable_external_access = false")
+    con.execute("SET lock_configuration = true")
+
+
 def connect(path: str | os.PathLike[str], *, read_only: bool = False, wait_seconds: float | None = None,
-            create: bool = False, external_access: bool = True) -> duckdb.DuckDBPyConnection:
+            create: bool = False, external_access: bool = True,
+            allowed_directories: Sequence[str | os.PathLike[str]] = ()) -> duckdb.DuckDBPyConnection:
     """Open the store at ``path``.
 
     A writer (``read_only=False``) brings the schema up to date. A reader needs an existing store.
     While another process holds the lock, retries with backoff for up to ``wait_seconds`` (default
     ``$AFTERWARD_LOCK_WAIT`` or 10 s).
-    ``external_access=False`` stops SQL from reading or writing files outside the store.
+    ``external_access=False`` stops SQL from reading or writing files, installing or loading
+    extensions and reaching the network, except for files under ``allowed_directories`` (absolute
+    folders; DuckDB compares path prefixes, so a symbolic link inside one is followed), and locks the
+    connection's configuration so a query cannot undo it.
     """
     p = Path(path)
     if not p.exists() and (read_only or not create):
@@ -66,8 +84,6 @@ def connect(path: str | os.PathLike[str], *, read_only: bool = False, wait_secon
     if p.exists() and p.is_dir():
         raise StoreError(f"the store path {p} is a directory, not a DuckDB file")
     config: dict[str, str | bool] = {}
-    if not external_access:
-        config["enable_external_access"] = False
     deadline = time.monotonic() + (_default_wait() if wait_seconds is None else wait_seconds)
     delay = 0.05
     while True:
@@ -84,6 +100,8 @@ def connect(path: str | os.PathLike[str], *, read_only: bool = False, wait_secon
         except duckdb.Error as exc:
             raise StoreError(f"cannot open the store {p}: {str(exc).splitlines()[0]}") from None
     try:
+        if not external_access:
+            _close_external_access(con, allowed_directories)
         if read_only:
             if schema_version(con) == 0:
                 raise StoreError(f"{p} is not an afterward store (no schema found)")
