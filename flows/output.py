@@ -55,12 +55,14 @@ def write_result(table: pa.Table, fmt: str, out: Path | None, console) -> None: 
         text = buf.getvalue()
     else:
         from rich.table import Table
+        from rich.text import Text
 
+        # cells and names as plain Text: a value like '[/b]' read as markup would raise MarkupError
         t = Table(show_lines=False)
         for name in table.column_names:
-            t.add_column(name)
+            t.add_column(Text(name))
         for r in rows[:1000]:
-            t.add_row(*["" if v is None else str(_plain(v)) for v in r.values()])
+            t.add_row(*[Text("" if v is None else str(_plain(v))) for v in r.values()])
         if out is None:
             console.print(t)
             if len(rows) > 1000:
