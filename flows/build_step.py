@@ -27,6 +27,7 @@ __all__ = ["BuildSummary", "code_version", "run_build", "scenario_name"]
 
 CHUNK_DAYS = 2500
 SHAPE_CHECKS = ("negative_forward", "non_monotone_discount")
+GRID_BLOCK = 24  # shape-check grid columns evaluated at a time (see _discount_in_blocks)
 
 
 def code_version() -> str:
@@ -116,7 +117,7 @@ def run_build(cfg: Config, curve: str | None = None, first: object = None, last:
                 shape = None
                 if ok.any():
                     grid = np.tile(grid_times, (len(ok), 1))
-                    shape = curve_shape_checks(cs.as_of[ok], grid[ok], cs.discount(grid)[ok], c)
+                    shape = curve_shape_checks(cs.as_of[ok], grid[ok], _discount_in_blocks(cs, grid)[ok], c)
                 params = cs.params[ok] if cs.params is not None else None
                 if params is not None and len(params):
                     warm = params[-1]
@@ -128,6 +129,18 @@ def run_build(cfg: Config, curve: str | None = None, first: object = None, last:
                     on_progress(name, min(k + CHUNK_DAYS, total), total)
             summary.curves[name] = info
     return summary
+
+
+def _discount_in_blocks(cs, grid: np.ndarray) -> np.ndarray:  # noqa: ANN001
+    """``cs.discount(grid)`` for a (days, K) grid, evaluated GRID_BLOCK columns at a time.
+
+    The same numbers; but evaluating all 360 monthly points of 2,500 days at once made the curve
+    methods' temporaries (days x points x nodes) so large that monotone convex ran 3-4x slower.
+    """
+    k = grid.shape[1]
+    if k <= GRID_BLOCK:
+        return cs.discount(grid)
+    return np.concatenate([cs.discount(grid[:, j:j + GRID_BLOCK]) for j in range(0, k, GRID_BLOCK)], axis=1)
 
 
 def _last_params(con, curve: str, scenario: str) -> np.ndarray | None:  # noqa: ANN001
