@@ -23,7 +23,6 @@ The flow returns a :class:`DailySummary` and publishes two table artifacts: ``af
 
 from __future__ import annotations
 
-import os
 import shutil
 import time
 from collections.abc import Callable
@@ -449,9 +448,3 @@ def daily(config_path: str, settle_seconds: float = SETTLE_SECONDS,
              summary.outcomes_realized)
     return summary
 
-
-def config_path_of(cfg: Config) -> str:
-    """The path a flow run is given to read the settings again (flows take paths, not objects)."""
-    if cfg.path is None:
-        raise ValueError("the configuration has no file path; the Prefect flows read it from a file")
-    return os.fspath(cfg.path)
