@@ -47,7 +47,10 @@ def main() -> int:
             flag = next((f for f in ("--repeat", "--runs") if f'"{f}"' in text), None)
             if flag:  # scripts name their repeat count in one of two ways
                 cmd += [flag, str(args.repeat)]
-        print(f"=== {path.name} " + "=" * max(0, 70 - len(path.name)), flush=True)
+        # other work on the machine skews wall-clock figures: say how busy it was
+        load = os.getloadavg()[0] if hasattr(os, "getloadavg") else float("nan")
+        print(f"=== {path.name} (load average {load:.1f} on {os.cpu_count()} cores) "
+              + "=" * max(0, 50 - len(path.name)), flush=True)
         t0 = time.perf_counter()
         proc = subprocess.run(cmd, cwd=HERE.parent, env=env, check=False)
         print(f"--- {path.name}: {'ok' if proc.returncode == 0 else f'FAILED (exit {proc.returncode})'} "
