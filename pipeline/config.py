@@ -122,6 +122,19 @@ class Config:
             raise ConfigError(f"unknown curve {name!r}; configured curves: {known}") from None
 
 
+def local_timezone() -> str:
+    """The machine's IANA time zone (``$TZ``, else the target of /etc/localtime), or ``UTC``."""
+    env = os.environ.get("TZ", "").lstrip(":")
+    if env and ("/" in env or env == "UTC"):
+        return env
+    try:
+        target = os.path.realpath("/etc/localtime")
+    except OSError:
+        return "UTC"
+    marker = "zoneinfo/"
+    return target.split(marker, 1)[1] if marker in target else "UTC"
+
+
 def find_config(explicit: str | os.PathLike[str] | None = None) -> Path:
     """``--config PATH``, else ``$AFTERWARD_CONFIG``, else ``./afterward.toml``."""
     if explicit:
@@ -358,7 +371,9 @@ def parse_config(data: dict[str, Any], *, base: Path, path: Path | None = None) 
     cron = sched.get("cron", "30 18 * * 1-5")
     if not isinstance(cron, str) or len(cron.split()) != 5:
         raise ConfigError(f"schedule.cron = {cron!r} must be a five-field cron expression")
-    tz = sched.get("timezone", "UTC")
+    tz = sched.get("timezone", "local")
+    if tz == "local":
+        tz = local_timezone()
     try:
         from zoneinfo import ZoneInfo
 

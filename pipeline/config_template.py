@@ -14,7 +14,7 @@ refused = "inbox/refused"            # files that could not be read at all are m
 
 [schedule]
 cron = "30 18 * * 1-5"               # when `afterward serve` runs the daily job (weekdays 18:30)
-timezone = "UTC"                     # an IANA time zone, e.g. "Europe/Paris"
+timezone = "local"                   # "local" (this machine's zone) or an IANA zone, e.g. "Europe/Paris"
 
 # One table per curve; the name after "curves." is the curve's id in every view.
 [curves.govt]
