@@ -24,17 +24,17 @@ def read_outcomes(con, cfg: Config, curve: str) -> pd.DataFrame:  # noqa: ANN001
     c = cfg.curve(curve)
     if c.inversion_pairs:
         short, long = c.inversion_pairs[0]
-        inverted = ("(SELECT ql.rate < qs.rate FROM quotes qs, quotes ql WHERE qs.curve = o.curve AND "
-                    "ql.curve = o.curve AND qs.as_of = o.as_of AND ql.as_of = o.as_of "
-                    f"AND qs.tenor = '{short.label}' AND ql.tenor = '{long.label}')")
+        inverted = "ql.rate < qs.rate"
+        joins = (f"LEFT JOIN quotes qs ON qs.curve = o.curve AND qs.as_of = o.as_of AND qs.tenor = '{short.label}' "
+                 f"LEFT JOIN quotes ql ON ql.curve = o.curve AND ql.as_of = o.as_of AND ql.tenor = '{long.label}'")
     else:
-        inverted = "CAST(NULL AS BOOLEAN)"
+        inverted, joins = "CAST(NULL AS BOOLEAN)", ""
     frame = read_frame(
         con,
         f"""SELECT o.curve, o.as_of, o.start_months, o.tenor_months, o.target_date, o.observed_on, o.forward_rate,
-                   o.realized_rate, o.spot_rate, o.error_bp, o.rw_error_bp, {inverted} AS inverted, r.realized_at
-            FROM outcomes o JOIN outcome r USING (curve, as_of, start_months, tenor_months)
-            WHERE o.curve = ? AND r.superseded_at IS NULL
+                   o.realized_rate, o.spot_rate, o.error_bp, o.rw_error_bp, {inverted} AS inverted, o.realized_at
+            FROM outcome o {joins}
+            WHERE o.curve = ? AND o.superseded_at IS NULL
             ORDER BY o.start_months, o.tenor_months, o.as_of""",
         [curve], date_as_object=False,
     )
