@@ -1,0 +1,134 @@
+"""Property-based tests of the readers (hypothesis): whatever bytes come in, ``read_rate_file`` returns
+(never raises), and what it returns keeps the promise rows read = accepted + rejected, with one-line
+reasons, finite values and real dates. For grids of simple cells the number of rows read equals the
+count made from the cells by ``corpus.count_rows`` (the readers' documented rule, counted apart)."""
+
+from __future__ import annotations
+
+import io
+import math
+
+import numpy as np
+import pyarrow as pa
+import pyarrow.parquet as pq
+from hypothesis import HealthCheck, given, settings
+from hypothesis import strategies as st
+
+from pipeline.readers import ReadLimits, read_rate_file, to_decimal
+from tests.hardening.corpus import count_rows
+from tests.hardening.harness import TALLY
+
+SETTINGS = settings(max_examples=250, deadline=None, derandomize=True,
+                    suppress_health_check=[HealthCheck.too_slow, HealthCheck.data_too_large])
+NAMES = st.sampled_from(["f.csv", "f.parquet", "f.xlsx", "f.xls", "f", "f.txt"])
+PREFIXES = st.sampled_from([b"", b"PK\x03\x04", b"PAR1", b"\xef\xbb\xbf", b"\xff\xfe", b"\xfe\xff", b"date,3M\n",
+                            b"date,tenor,rate\n", b"\x00"])
+
+
+def _check(result, limits: ReadLimits | None = None) -> None:  # noqa: ANN001
+    TALLY.property_examples += 1
+    assert result.rows_read == len(result.rows) + len(result.rejected)
+    if result.error is not None:
+        assert isinstance(result.error, str) and result.error.strip()
+        assert "\n" not in result.error and "\r" not in result.error
+        assert len(result.rows) == 0 and len(result.rejected) == 0
+        return
+    for reason in result.rejected["reason"]:
+        assert isinstance(reason, str) and reason.strip() and "\n" not in reason and "\r" not in reason
+    values = result.rows["value"].to_numpy(dtype=float)
+    assert np.isfinite(values).all()
+    assert not result.rows["as_of"].isna().any()
+    assert (result.rows["line"] >= 2).all() and (result.rejected["line"] >= 2).all()
+    if limits is not None:
+        assert len(set(result.rows["line"]) | set(result.rejected["line"])) <= limits.max_lines
+
+
+@SETTINGS
+@given(prefix=PREFIXES, body=st.binary(max_size=3000), name=NAMES)
+def test_any_bytes_never_raise(prefix, body, name):
+    _check(read_rate_file(prefix + body, name))
+
+
+_LABELS = ["date", "as_of", "3M", "1Y", "10y", "12M", "3 Mo", "tenor", "rate", "curve", "7Q", "", " ", "=1+1", "日本",
+           "\ufeffdate", "DATE", "1W", "ON", "0M", "99999Y"]
+_CELLS = ["4.1", "-0.5", "0", "1e308", "1e309", "NaN", "inf", "", " ", "2031-01-02", "2031-02-30", "2031-13-01",
+          "3M", "1Y", "abc", "=A1", "+4", "@x", "4,1", "1.234,5", "%", "4.1%", "０", "٤", "\u00a0", "\x00", "\ufffd",
+          '"', "'", "20310102", "2031/01/02", "31/01/2031", "9" * 60, "-", "."]
+
+
+@SETTINGS
+@given(header=st.lists(st.sampled_from(_LABELS), min_size=0, max_size=8),
+       rows=st.lists(st.lists(st.sampled_from(_CELLS), max_size=9), max_size=25),
+       sep=st.sampled_from([",", ";", "\t", "|"]), end=st.sampled_from(["\n", "\r\n", "\r"]), name=NAMES)
+def test_grids_of_hostile_cells(header, rows, sep, end, name):
+    text = end.join([sep.join(header), *(sep.join(r) for r in rows)]) + end
+    _check(read_rate_file(text.encode("utf-8"), name))
+
+
+_DAYS = ["2031-01-02", "2031-1-3", "2031/01/06", "20310107", "2031-02-30", "2031-13-01", "x", "", "0000-01-01"]
+_RATES = ["4.1", "-0.25", "", " ", "1e3", "abc", "NaN", "inf", "0.0001", "7"]
+
+
+@SETTINGS
+@given(days=st.lists(st.sampled_from(_DAYS), max_size=30, unique=False),
+       data=st.data(), n_tenors=st.integers(1, 5))
+def test_rows_read_match_the_cells(days, data, n_tenors):
+    """Clean-shaped wide grids: rows read is exactly the count from the cells, none lost or invented."""
+    header = ["date", "3M", "1Y", "2Y", "5Y", "10Y"][: n_tenors + 1]
+    rows = []
+    for d in days:
+        width = data.draw(st.integers(1, n_tenors + 2), label="width")
+        rows.append([d, *data.draw(st.lists(st.sampled_from(_RATES), min_size=width - 1, max_size=width - 1))])
+    text = "\n".join([",".join(header), *(",".join(r) for r in rows)]) + "\n"
+    result = read_rate_file(text.encode(), "g.csv")
+    _check(result)
+    assert result.rows_read == count_rows(header, rows)
+
+
+@SETTINGS
+@given(cut=st.integers(0, 10_000), flips=st.lists(st.tuples(st.integers(0, 10_000), st.integers(0, 255)),
+                                                 max_size=6), kind=st.sampled_from(["parquet", "xlsx"]))
+def test_damaged_parquet_and_xlsx(cut, flips, kind):
+    data = bytearray(_GOOD[kind])
+    for pos, byte in flips:
+        data[pos % len(data)] = byte
+    data = data[: max(1, cut % (len(data) + 1))] if cut % 3 == 0 else data
+    _check(read_rate_file(bytes(data), f"f.{kind}"))
+
+
+@SETTINGS
+@given(n=st.integers(0, 40), limit=st.integers(1, 30))
+def test_line_limit(n, limit):
+    limits = ReadLimits(max_lines=limit)
+    text = "date,3M\n" + "".join(f"2031-01-{1 + k % 28:02d},4.{k}\n" for k in range(n))
+    result = read_rate_file(text.encode(), "f.csv", limits=limits)
+    _check(result, limits)
+    assert (result.error is not None) == (n > limit)
+
+
+@SETTINGS
+@given(x=st.floats(allow_nan=False, allow_infinity=False), units=st.sampled_from(["percent", "bp", "decimal"]))
+def test_to_decimal_stays_finite(x, units):
+    divisor = {"percent": 100.0, "bp": 10_000.0, "decimal": 1.0}[units]
+    y = float(to_decimal(np.array([x]), units)[0])
+    TALLY.property_examples += 1
+    assert math.isfinite(y)
+    # rounding to 14 decimals moves a value by at most 5e-15 (plain division is the reference)
+    assert abs(y - x / divisor) <= 5e-15 + 1e-15 * abs(x / divisor)
+
+
+def _good_bytes() -> dict[str, bytes]:
+    import openpyxl
+
+    buf = io.BytesIO()
+    pq.write_table(pa.table({"date": ["2031-01-02", "2031-01-03"], "3M": [4.1, 4.2], "1Y": [4.3, None]}), buf)
+    wb = openpyxl.Workbook()
+    ws = wb.active
+    for r in (["date", "3M", "1Y"], ["2031-01-02", 4.1, 4.2], ["2031-01-03", 4.1, "x"]):
+        ws.append(r)
+    out = io.BytesIO()
+    wb.save(out)
+    return {"parquet": buf.getvalue(), "xlsx": out.getvalue()}
+
+
+_GOOD = _good_bytes()
