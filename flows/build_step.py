@@ -58,8 +58,10 @@ class BuildSummary:
 
 
 def _grid_times(max_years: float) -> np.ndarray:
-    """A monthly grid of year fractions out to the longest tenor, for the shape checks."""
-    return np.arange(1, int(np.ceil(max_years * 12)) + 1) / 12.0
+    """Year fractions for the shape checks: monthly to 2 years, where curves bend most and money-market
+    tenors sit, then quarterly out to the longest tenor (a 30-year curve: 136 points, not 360)."""
+    months = np.r_[np.arange(1, 25), np.arange(27, int(np.ceil(max_years * 12)) + 3, 3)]
+    return months[months <= max(24, int(np.ceil(max_years * 12)))] / 12.0
 
 
 def run_build(cfg: Config, curve: str | None = None, first: object = None, last: object = None,
