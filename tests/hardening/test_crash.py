@@ -281,10 +281,11 @@ def test_sigkill_during_build(build_setup):
         mode = "rebuild" if i % 2 else "fresh"
         # the chunks of days are computed fast and written within a fraction of a second, so most kills
         # are timed from the first write to the store's log; a third anywhere in the run
+        # (the window after the first write also holds the checkpoint and the exit, hence 0.6 of it)
         if i % 3:
-            triggers[i], delay = "wal", rng.uniform(0.0, timing[f"{mode}-writing"] * 0.9)
+            triggers[i], delay = "wal", rng.uniform(0.0, timing[f"{mode}-writing"] * 0.6)
         else:
-            triggers[i], delay = "start", rng.uniform(0.3, timing[mode] * 0.85)
+            triggers[i], delay = "start", rng.uniform(0.3, timing[mode] * 0.8)
         trials.append(Trial(i, _project(root / f"trial{i:02d}", built if mode == "rebuild" else unbuilt), mode, delay))
 
     def start(t: Trial) -> Trial:
