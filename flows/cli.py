@@ -104,7 +104,7 @@ def load(
     if curve is not None:
         cfg.curve(curve)
     console = _console()
-    outcomes = load_files(cfg, files, curve, on_file=lambda o: console.print(describe_outcome(o)))
+    outcomes = load_files(cfg, files, curve, on_file=lambda o: console.print(describe_outcome(o), markup=False))
     bad = [o for o in outcomes if o.status in ("refused", "missing") or o.rows_rejected]
     if bad:
         raise typer.Exit(1)

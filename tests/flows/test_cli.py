@@ -68,12 +68,14 @@ def test_sql_refuses_writes(project, statement, kind):
     assert f"{kind} statements are not allowed" in _one_line_error(proc)
 
 
-def test_sql_cannot_read_files_unless_allowed(project):
+def test_sql_cannot_read_files_outside_the_store_unless_allowed(project, tmp_path_factory):
     (project / "govt_2031-01.csv").write_text(GOOD)
     run_cli("load", "govt_2031-01.csv", cwd=project)
-    proc = run_cli("sql", "SELECT * FROM read_csv('govt_2031-01.csv')", cwd=project)
+    outside = tmp_path_factory.mktemp("elsewhere") / "other.csv"
+    outside.write_text(GOOD)
+    proc = run_cli("sql", f"SELECT * FROM read_csv('{outside}')", cwd=project)
     assert proc.returncode == 2 and "SQL error" in _one_line_error(proc)
-    ok = run_cli("sql", "SELECT count(*) AS n FROM read_csv('govt_2031-01.csv')", "--allow-files",
+    ok = run_cli("sql", f"SELECT count(*) AS n FROM read_csv('{outside}')", "--allow-files",
                  "--format", "csv", cwd=project)
     assert ok.returncode == 0 and ok.stdout.splitlines()[1] == "1"
 

@@ -104,9 +104,6 @@ def test_every_reason_is_one_line(loaded_corpus):
     assert refused and all(d == r and line == 0 for d, r, line in refused)
 
 
-@pytest.mark.xfail(strict=True, reason="flows/cli.py (load) prints each outcome through rich markup, so a header "
-                   "cell such as '[/b]' quoted in a refusal raises MarkupError and stops the load; the fix "
-                   "(console.print(..., markup=False)) is outside the files this suite may change")
 def test_markup_in_a_refused_header_does_not_stop_the_load(tmp_path):
     (tmp_path / "afterward.toml").write_text(CORPUS_CONFIG, encoding="utf-8")
     (tmp_path / "govt_a.csv").write_text("date,[/b]\n2031-01-02,4.1\n", encoding="utf-8")
