@@ -19,6 +19,7 @@ from flows.build_step import run_build
 from flows.check_step import run_checks
 from flows.steps import load_files
 from tests.e2e.stores import Project, clone_project, make_project, write_wide_csv
+from tests.quantlib_ref import ql_calendar, ql_date
 
 TENORS = ["1M", "3M", "6M", "1Y", "2Y", "3Y", "5Y"]
 HOLIDAYS = ["2031-12-25", "2031-12-26", "2032-01-01", "2032-03-01", "2032-04-30", "2037-01-01"]
@@ -81,21 +82,8 @@ def built(tmp_path_factory) -> Project:
     return p
 
 
-def _ql_date(d) -> ql.Date:
-    x = pd.Timestamp(d).date()
-    return ql.Date(x.day, x.month, x.year)
-
-
-def _ql_calendar() -> ql.Calendar:
-    cal = ql.BespokeCalendar("e2e-build")
-    cal.addWeekend(ql.Saturday)
-    cal.addWeekend(ql.Sunday)
-    for h in HOLIDAYS:
-        cal.addHoliday(_ql_date(h))
-    return cal
-
-
-QL_CAL = _ql_calendar()
+_ql_date = ql_date
+QL_CAL = ql_calendar("e2e-build", holidays=HOLIDAYS)
 DC = ql.Actual365Fixed()
 
 

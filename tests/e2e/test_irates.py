@@ -28,6 +28,7 @@ from flows.check_step import run_checks
 from flows.realize_step import run_realize
 from flows.steps import load_files
 from tests.e2e.stores import make_project, write_wide_csv
+from tests.quantlib_ref import ql_date
 
 COLUMNS = {"r1": "1M", "r2": "2M", "r3": "3M", "r5": "5M", "r6": "6M", "r11": "11M", "r12": "12M",
            "r36": "3Y", "r60": "5Y", "r120": "10Y"}
@@ -82,9 +83,7 @@ WEEKDAYS = ql.WeekendsOnly()
 DC = ql.Actual365Fixed()
 
 
-def _ql(d) -> ql.Date:
-    x = pd.Timestamp(d).date()
-    return ql.Date(x.day, x.month, x.year)
+_ql = ql_date
 
 
 def _py(d: ql.Date) -> dt.date:

@@ -22,6 +22,7 @@ from pipeline.curves.nss import fit_nss, nss_zero
 from pipeline.dates import BusinessCalendar, add_months, year_fraction
 from pipeline.forwards import zero_rate_table
 from pipeline.tenors import parse_tenor
+from tests.quantlib_ref import ql_calendar, ql_date
 
 NO_WEEKEND = BusinessCalendar.of([])  # with 30/360, coupon times are exact multiples of a period
 HOLIDAYS = ["2032-02-27", "2032-08-31", "2033-02-28", "2036-06-30", "2040-02-29", "2061-12-30"]
@@ -112,21 +113,8 @@ def test_hull_par_yield_and_bond_price_from_zeros(zeros, price, par, annuity):
         assert abs(float(c.discount(np.array([[2.0]]))[0, 0]) - 0.8694) < 5e-5
 
 
-def _ql(d) -> ql.Date:
-    x = dt.date.fromisoformat(str(np.datetime64(d, "D")))
-    return ql.Date(x.day, x.month, x.year)
-
-
-def _ql_cal() -> ql.Calendar:
-    cal = ql.BespokeCalendar("bootstrap-test")
-    cal.addWeekend(ql.Saturday)
-    cal.addWeekend(ql.Sunday)
-    for h in HOLIDAYS:
-        cal.addHoliday(_ql(h))
-    return cal
-
-
-QL_CAL = _ql_cal()
+_ql = ql_date
+QL_CAL = ql_calendar("bootstrap-test", holidays=HOLIDAYS)
 
 
 def _independent_prices(curves, as_of, tenors, coupons, m, day_count):

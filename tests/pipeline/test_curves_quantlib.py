@@ -9,8 +9,6 @@ agree to 1e-10. The quotes are the literal table below (annual-compounding zero 
 
 from __future__ import annotations
 
-import datetime as dt
-
 import numpy as np
 import pytest
 import QuantLib as ql
@@ -19,6 +17,7 @@ from pipeline.config import CurveConfig
 from pipeline.curves import build_curves
 from pipeline.dates import BusinessCalendar, maturity_dates, year_fraction
 from pipeline.tenors import parse_tenor
+from tests.quantlib_ref import ql_calendar, ql_date
 
 TENORS = ["1M", "3M", "6M", "1Y", "2Y", "5Y", "10Y", "30Y"]
 AS_OF = ["2031-12-24", "2032-01-30", "2032-02-26", "2032-03-01"]
@@ -35,21 +34,8 @@ QL_DC = {"ACT/365F": ql.Actual365Fixed(), "ACT/ACT": ql.ActualActual(ql.ActualAc
 TOL = 1e-10
 
 
-def _ql(d) -> ql.Date:
-    x = dt.date.fromisoformat(str(np.datetime64(d, "D")))
-    return ql.Date(x.day, x.month, x.year)
-
-
-def _ql_calendar() -> ql.Calendar:
-    cal = ql.BespokeCalendar("curves-test")
-    cal.addWeekend(ql.Saturday)
-    cal.addWeekend(ql.Sunday)
-    for h in HOLIDAYS:
-        cal.addHoliday(_ql(h))
-    return cal
-
-
-QL_CAL = _ql_calendar()
+_ql = ql_date
+QL_CAL = ql_calendar("curves-test", holidays=HOLIDAYS)
 
 
 def _cfg(day_count: str) -> CurveConfig:

@@ -17,6 +17,7 @@ from hypothesis import strategies as st
 
 from pipeline.dates import BusinessCalendar, add_months, day_count_days, maturity_dates, year_fraction
 from pipeline.tenors import Tenor
+from tests.quantlib_ref import np_date, ql_calendar, ql_date
 
 HOLIDAYS = ["2031-12-25", "2031-12-26", "2032-01-01", "2032-02-27", "2032-02-29", "2033-03-31",
             "2040-06-29", "2040-06-30", "2041-01-31"]
@@ -26,28 +27,14 @@ OURS = {
     "fri-sat": BusinessCalendar.of(["Fri", "Sat"], HOLIDAYS),
     "no-weekend": BusinessCalendar.of([], HOLIDAYS),
 }
-_QL_DAYS = {"Mon": ql.Monday, "Tue": ql.Tuesday, "Wed": ql.Wednesday, "Thu": ql.Thursday, "Fri": ql.Friday,
-            "Sat": ql.Saturday, "Sun": ql.Sunday}
 
-
-def _ql(d) -> ql.Date:
-    x = dt.date.fromisoformat(str(np.datetime64(d, "D")))
-    return ql.Date(x.day, x.month, x.year)
-
-
-def _np(d: ql.Date) -> np.datetime64:
-    return np.datetime64(d.ISO(), "D")
+_ql, _np = ql_date, np_date
 
 
 def _ql_calendar(name: str, cal: BusinessCalendar) -> ql.Calendar:
     if cal.weekend == ("Sat", "Sun") and not cal.holidays:
         return ql.WeekendsOnly()
-    out = ql.BespokeCalendar(f"test-{name}")
-    for d in cal.weekend:
-        out.addWeekend(_QL_DAYS[d])
-    for h in cal.holidays:
-        out.addHoliday(_ql(h))
-    return out
+    return ql_calendar(f"test-{name}", cal.weekend, cal.holidays)
 
 
 QL = {name: _ql_calendar(name, cal) for name, cal in OURS.items()}

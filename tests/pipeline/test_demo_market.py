@@ -28,6 +28,7 @@ import statsmodels.api as sm
 from pipeline import demo_market as dm
 from pipeline.config import load_config, parse_config
 from pipeline.dates import BusinessCalendar, maturity_dates
+from tests.quantlib_ref import ql_calendar
 
 # --- fixtures -------------------------------------------------------------------------------------
 
@@ -360,13 +361,7 @@ def test_par_yield_formula_matches_the_textbook(zeros: tuple[float, ...], par_pc
 
 
 def _ql_calendar() -> ql.Calendar:
-    cal = ql.BespokeCalendar("Orvane")
-    cal.addWeekend(ql.Saturday)
-    cal.addWeekend(ql.Sunday)
-    for d in dm.demo_holidays():
-        y, m, day = map(int, str(d).split("-"))
-        cal.addHoliday(ql.Date(day, m, y))
-    return cal
+    return ql_calendar("Orvane", holidays=dm.demo_holidays())
 
 
 def _to_np(d: ql.Date) -> np.datetime64:

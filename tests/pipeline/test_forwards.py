@@ -8,8 +8,6 @@ pandas recomputation of each forward from its two discount factors.
 
 from __future__ import annotations
 
-import datetime as dt
-
 import numpy as np
 import pandas as pd
 import pytest
@@ -20,6 +18,7 @@ from pipeline.curves import build_curves
 from pipeline.dates import BusinessCalendar, maturity_dates
 from pipeline.forwards import forward_surface, zero_rate_table
 from pipeline.tenors import parse_tenor
+from tests.quantlib_ref import ql_date
 
 # 30/360 with no weekend makes the tenors exact multiples of a year, as in the textbook tables
 EXACT = BusinessCalendar.of([])
@@ -117,9 +116,7 @@ def test_each_forward_is_the_ratio_of_its_discount_factors():
     np.testing.assert_allclose(fs["forward_rate_cc"].to_numpy(), np.log(d1 / d2) / tau, rtol=0, atol=1e-13)
 
 
-def _ql(d) -> ql.Date:
-    x = dt.date.fromisoformat(str(np.datetime64(d, "D")))
-    return ql.Date(x.day, x.month, x.year)
+_ql = ql_date
 
 
 def test_forward_surface_matches_quantlib_zero_curve():
