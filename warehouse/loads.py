@@ -23,7 +23,7 @@ import pyarrow as pa
 
 from warehouse.query import fetch_one
 
-__all__ = ["FileBatch", "LoadOutcome", "Loader", "already_loaded", "record_load", "utc_now"]
+__all__ = ["FileBatch", "LoadOutcome", "Loader", "utc_now"]
 
 # equal rates within this are the same quote re-sent, not a restatement (decimals)
 RATE_EPS = 1e-12
@@ -70,11 +70,6 @@ class LoadOutcome:
     curves: tuple[str, ...] = ()
     first_day: object = None
     last_day: object = None
-
-
-def already_loaded(con: duckdb.DuckDBPyConnection, sha256: str) -> int | None:
-    row = fetch_one(con, "SELECT min(load_id) FROM load_log WHERE sha256 = ? AND status = 'loaded'", [sha256])
-    return int(row[0]) if row and row[0] is not None else None
 
 
 def _date32(values: pd.Series) -> pa.Array:
@@ -243,8 +238,3 @@ class Loader:
                            unchanged, n_rej, curves=curves,
                            first_day=None if days is None else days.min(),
                            last_day=None if days is None else days.max())
-
-
-def record_load(con: duckdb.DuckDBPyConnection, batch: FileBatch) -> LoadOutcome:
-    """Record one file with a fresh :class:`Loader` (convenient for a single file)."""
-    return Loader(con).record(batch)
