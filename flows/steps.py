@@ -8,9 +8,13 @@ Computation lives in ``pipeline``; storage in ``warehouse``; a step only wires t
 from __future__ import annotations
 
 import hashlib
+import itertools
+import multiprocessing
 import os
+import signal
 import stat
 from collections.abc import Callable, Iterable, Sequence
+from concurrent.futures import ProcessPoolExecutor
 from pathlib import Path
 
 import pandas as pd
@@ -105,21 +109,65 @@ def prepare_files(paths: Sequence[Path], cfg: Config, curve: str | None = None
     return out
 
 
+READ_AHEAD_MIN_FILES = 64
+
+
+def _reader_process() -> ProcessPoolExecutor | None:
+    """One forked process that reads and validates files while this one records, or None where fork is missing.
+
+    DuckDB holds the interpreter lock while it runs a statement, so a thread would not overlap with the
+    store's work; a forked process does, and starts at once with everything already imported. It is
+    made before the store is opened, so it never inherits the connection.
+    """
+    if "fork" not in multiprocessing.get_all_start_methods():
+        return None
+    return ProcessPoolExecutor(max_workers=1, mp_context=multiprocessing.get_context("fork"),
+                               initializer=_quiet_reader)
+
+
+def _quiet_reader() -> None:
+    # Ctrl-C is the recording process's to handle; the reader just stops when that one does
+    signal.signal(signal.SIGINT, signal.SIG_IGN)
+
+
 def load_files(cfg: Config, paths: Iterable[Path], curve: str | None = None,
-               on_file: Callable[[LoadOutcome], None] | None = None, chunk: int = 400) -> list[LoadOutcome]:
+               on_file: Callable[[LoadOutcome], None] | None = None, chunk: int = 120,
+               read_ahead: bool | None = None) -> list[LoadOutcome]:
     """Load each file in its own transaction; returns one outcome per file, in order.
 
     Files are read and validated in chunks, then recorded one transaction per file through the one
-    writer, so a failure part-way leaves every earlier file committed and the rest untouched.
+    writer, so a failure part-way leaves every earlier file committed and the rest untouched. With
+    ``read_ahead`` (by default: from :data:`READ_AHEAD_MIN_FILES` files up), a second process reads
+    and validates the next chunks while this one records; the outcome is the same either way.
     """
     files = list(paths)
+    chunks = [files[i:i + chunk] for i in range(0, len(files), chunk)]
+    if read_ahead is None:
+        read_ahead = len(files) >= READ_AHEAD_MIN_FILES
     outcomes: list[LoadOutcome] = []
-    with writer(cfg.store_path) as con:
-        loader = Loader(con)
-        for i in range(0, len(files), chunk):
-            for item in prepare_files(files[i:i + chunk], cfg, curve):
-                outcome = item if isinstance(item, LoadOutcome) else loader.record(item)
-                outcomes.append(outcome)
-                if on_file is not None:
-                    on_file(outcome)
+    ahead = _reader_process() if read_ahead and len(chunks) > 1 else None
+    try:
+        if ahead is not None:
+            # the first chunk is read here while the reader starts on the second
+            later = [ahead.submit(prepare_files, c, cfg, curve) for c in chunks[1:]]
+            parts: Iterable = itertools.chain([prepare_files(chunks[0], cfg, curve)], (f.result() for f in later))
+        else:
+            parts = (prepare_files(c, cfg, curve) for c in chunks)
+        with writer(cfg.store_path) as con:
+            loader = Loader(con)
+            for items in parts:
+                loader.prefetch([i for i in items if isinstance(i, FileBatch)])
+                for item in items:
+                    outcome = item if isinstance(item, LoadOutcome) else loader.record(item)
+                    outcomes.append(outcome)
+                    if on_file is not None:
+                        on_file(outcome)
+    except BaseException:
+        if ahead is not None:
+            ahead.shutdown(wait=False, cancel_futures=True)
+            ahead = None
+        raise
+    finally:
+        if ahead is not None:
+            ahead.shutdown(wait=True)
     return outcomes

@@ -72,7 +72,7 @@ class LoadOutcome:
     last_day: object = None
 
 
-def _date32(values: pd.Series) -> pa.Array:
+def _date32(values: pd.Series | np.ndarray) -> pa.Array:
     return pa.array(np.asarray(values, dtype="datetime64[D]"), type=pa.date32())
 
 
@@ -85,7 +85,12 @@ class Loader:
 
     def __init__(self, con: duckdb.DuckDBPyConnection) -> None:
         self.con = con
-        self._current: dict[str, dict[tuple[int, str], float]] = {}
+        # current rate by key (day number << 20 | tenor code), one dict per curve
+        self._current: dict[str, dict[int, float]] = {}
+        # the span of day numbers (inclusive) whose current quotes have been read, per curve: a daily file
+        # reads its own days, not the whole history
+        self._cover: dict[str, tuple[int, int]] = {}
+        self._tenor_code: dict[str, int] = {}
         self._loaded: dict[str, int] | None = None
         self._last_id: int | None = None
 
@@ -104,43 +109,79 @@ class Loader:
             }
         return self._loaded
 
-    def _curve_state(self, curve: str) -> dict[tuple[int, str], float]:
-        """Current rate by (day number, tenor) for one curve, read on first use."""
-        state = self._current.get(curve)
-        if state is None:
-            rows = self.con.execute(
-                "SELECT date_diff('day', DATE '1970-01-01', as_of), tenor, rate FROM quote_version "
-                "WHERE curve = ? AND superseded_at IS NULL", [curve],
-            ).fetchall()
-            state = {(d, t): r for d, t, r in rows}
-            self._current[curve] = state
+    def _encode(self, days: np.ndarray, tenors: list[str]) -> list[int]:
+        """Integer keys for (day number, tenor): cheap to hash, built without a per-row tuple."""
+        codes = self._tenor_code
+        tc = np.fromiter((codes.setdefault(t, len(codes)) for t in tenors), dtype=np.int64, count=len(tenors))
+        return ((days.astype(np.int64) << 20) | tc).tolist()
+
+    def _curve_state(self, curve: str, lo: int, hi: int) -> dict[int, float]:
+        """Current rate by key for one curve, holding at least the days ``lo..hi`` (day numbers)."""
+        state = self._current.setdefault(curve, {})
+        cover = self._cover.get(curve)
+        if cover is None:
+            spans = [(lo, hi)]
+        else:
+            spans = [s for s in ((lo, cover[0] - 1), (cover[1] + 1, hi)) if s[0] <= s[1]]
+        for a, b in spans:
+            frame = self.con.sql(
+                "SELECT date_diff('day', DATE '1970-01-01', as_of) AS day, tenor, rate FROM quote_version "
+                "WHERE curve = ? AND superseded_at IS NULL "
+                "AND as_of BETWEEN DATE '1970-01-01' + CAST(? AS INTEGER) AND DATE '1970-01-01' + CAST(? AS INTEGER)",
+                params=[curve, a, b],
+            ).to_arrow_table()
+            if frame.num_rows:
+                state.update(zip(self._encode(frame.column("day").to_numpy(), frame.column("tenor").to_pylist()),
+                                 frame.column("rate").to_numpy().tolist(), strict=True))
+        if spans:
+            self._cover[curve] = (lo, hi) if cover is None else (min(lo, cover[0]), max(hi, cover[1]))
         return state
 
-    @staticmethod
-    def _keys(rows: pd.DataFrame) -> list[tuple[int, str]]:
-        days = rows["as_of"].to_numpy(dtype="datetime64[D]").astype(np.int64).tolist()
-        return list(zip(days, rows["tenor"].tolist(), strict=True))
+    def prefetch(self, batches: list[FileBatch]) -> None:
+        """Read, in one query per curve, the current quotes every batch's rows may revise."""
+        spans: dict[str, tuple[int, int]] = {}
+        for b in batches:
+            if not isinstance(b, FileBatch) or b.error is not None or not len(b.rows):
+                continue
+            names, days, _ = self._row_keys(b.rows, keys=False)
+            for curve, idx in self._by_curve(names).items():
+                part = days[idx]
+                lo, hi = int(part.min()), int(part.max())
+                old = spans.get(str(curve))
+                spans[str(curve)] = (lo, hi) if old is None else (min(lo, old[0]), max(hi, old[1]))
+        for curve, (lo, hi) in spans.items():
+            self._curve_state(curve, lo, hi)
 
     @staticmethod
-    def _by_curve(rows: pd.DataFrame) -> dict[object, np.ndarray]:
-        names = rows["curve"].to_numpy(dtype=object)
+    def _by_curve(names: np.ndarray) -> dict[object, np.ndarray]:
         if (names == names[0]).all():  # the usual case: a file of one curve
-            return {names[0]: np.arange(len(rows))}
-        return rows.groupby("curve", sort=False).indices
+            return {names[0]: slice(None)}  # type: ignore[dict-item]
+        return pd.Series(names).groupby(names, sort=False).indices
 
-    def _classify(self, rows: pd.DataFrame) -> np.ndarray:
+    def _row_keys(self, rows: pd.DataFrame, keys: bool = True) -> tuple[np.ndarray, np.ndarray, list[int]]:
+        names = rows["curve"].to_numpy(dtype=object)
+        days = rows["as_of"].to_numpy(dtype="datetime64[D]").view(np.int64)
+        return names, days, self._encode(days, rows["tenor"].tolist()) if keys else []
+
+    def _classify(self, names: np.ndarray, days: np.ndarray, keys: list[int]) -> np.ndarray:
         """Each row's previous current rate (NaN where the key is new)."""
-        old = np.full(len(rows), np.nan)
-        for curve, idx in self._by_curve(rows).items():
-            state = self._curve_state(str(curve))
+        old = np.full(len(keys), np.nan)
+        nan = float("nan")
+        for curve, idx in self._by_curve(names).items():
+            part_days = days[idx]
+            state = self._curve_state(str(curve), int(part_days.min()), int(part_days.max()))
             if state:
-                old[idx] = [state.get(k, np.nan) for k in self._keys(rows.iloc[idx])]
+                part = keys if isinstance(idx, slice) else [keys[i] for i in idx]
+                old[idx] = [state.get(k, nan) for k in part]
         return old
 
-    def _remember(self, rows: pd.DataFrame) -> None:
-        for curve, idx in self._by_curve(rows).items():
-            part = rows.iloc[idx]
-            self._curve_state(str(curve)).update(zip(self._keys(part), part["rate"].tolist(), strict=True))
+    def _remember(self, names: np.ndarray, keys: list[int], rates: np.ndarray, write: np.ndarray) -> None:
+        for curve, idx in self._by_curve(names).items():
+            sel = np.zeros(len(keys), dtype=bool)
+            sel[idx] = True
+            sel &= write
+            state = self._current[str(curve)]  # read by _classify before the write
+            state.update(zip((k for k, w in zip(keys, sel, strict=True) if w), rates[sel].tolist(), strict=True))
 
     def record(self, batch: FileBatch) -> LoadOutcome:
         """Record one file in a single transaction. Safe to rerun: a repeat is "already loaded"."""
@@ -153,13 +194,18 @@ class Loader:
         status = "refused" if batch.error is not None else "loaded"
         rows = batch.rows
         n_rej = 0 if batch.error is not None else len(batch.rejected)
-        old = self._classify(rows) if len(rows) else np.array([])
-        rates = rows["rate"].to_numpy(dtype=float) if len(rows) else np.array([])
+        if len(rows):
+            names, days, keys = self._row_keys(rows)
+            old = self._classify(names, days, keys)
+            rates = rows["rate"].to_numpy(dtype=float)
+            curves = tuple(sorted({str(c) for c in set(names.tolist())}))
+        else:
+            names, days, keys, old, rates, curves = np.array([], dtype=object), np.array([], dtype=np.int64), [], \
+                np.array([]), np.array([]), ()
         is_new = np.isnan(old)
         changed = ~is_new & (np.abs(old - rates) > RATE_EPS)
         new, revised = int(is_new.sum()), int(changed.sum())
         unchanged = len(rows) - new - revised
-        curves = tuple(sorted({str(c) for c in rows["curve"]})) if len(rows) else ()
 
         con.execute("BEGIN TRANSACTION")
         try:
@@ -180,15 +226,19 @@ class Loader:
                 )
                 con.unregister("_restated")
             if write.any():
-                w = rows if write.all() else rows.loc[write]
+                every = bool(write.all())
+                w = rows if every else rows.loc[write]
                 n = len(w)
+                one_curve = curves and len(curves) == 1
                 incoming = pa.table({
-                    "curve": _str(w["curve"]), "as_of": _date32(w["as_of"]), "tenor": _str(w["tenor"]),
-                    "maturity_date": _date32(w["maturity_date"]), "rate": pa.array(w["rate"].to_numpy(float)),
-                    "recorded_at": pa.array([started] * n, type=pa.timestamp("us")),
+                    "curve": pa.repeat(pa.scalar(curves[0], type=pa.string()), n) if one_curve else _str(w["curve"]),
+                    "as_of": pa.array(days if every else days[write], type=pa.int32()).cast(pa.date32()),
+                    "tenor": _str(w["tenor"]),
+                    "maturity_date": _date32(w["maturity_date"]), "rate": pa.array(rates if every else rates[write]),
+                    "recorded_at": pa.repeat(pa.scalar(started, type=pa.timestamp("us")), n),
                     "superseded_at": pa.nulls(n, type=pa.timestamp("us")),
-                    "load_id": pa.array(np.full(n, load_id, dtype=np.int64)),
-                    "source_file": pa.array([batch.source_file] * n, type=pa.string()),
+                    "load_id": pa.repeat(pa.scalar(load_id, type=pa.int64()), n),
+                    "source_file": pa.repeat(pa.scalar(batch.source_file, type=pa.string()), n),
                     "line": pa.array(w["line"].to_numpy(dtype=np.int32)),
                 }).sort_by([("curve", "ascending"), ("as_of", "ascending"), ("tenor", "ascending")])
                 # DuckDB reads the local Arrow table by its name (a replacement scan, no catalog change)
@@ -232,9 +282,9 @@ class Loader:
             return LoadOutcome(batch.source_file, "refused", load_id, detail=batch.error)
         loaded[batch.sha256] = load_id
         if write.any():
-            self._remember(rows.loc[write])
-        days = rows["as_of"] if len(rows) else None
+            self._remember(names, keys, rates, write)
+        span = rows["as_of"] if len(rows) else None
         return LoadOutcome(batch.source_file, "loaded", load_id, len(rows) + n_rej, len(rows), new, revised,
                            unchanged, n_rej, curves=curves,
-                           first_day=None if days is None else days.min(),
-                           last_day=None if days is None else days.max())
+                           first_day=None if span is None else span.min(),
+                           last_day=None if span is None else span.max())

@@ -18,7 +18,7 @@ import pytest
 
 from flows.steps import load_files
 from pipeline.config import load_config
-from tests.conftest import REPO
+from tests.conftest import REPO, SMALL_CONFIG
 
 JAN = (
     "date,3M,1Y,2Y,5Y,10Y\n"
@@ -182,3 +182,45 @@ def test_sigkill_during_load_leaves_the_store_as_it_was(project):
     assert out.status in ("loaded", "already loaded")
     assert _q(cfg, "SELECT count(*) FROM quotes")[0][0] == 14 + 200_000
     assert "absent" in outcomes, f"no trial killed the load mid-way: {outcomes}"
+
+
+def _month_files(folder: Path) -> list[Path]:
+    """Twelve monthly govt files, a restatement of a January day placed after December (so it lands in a later
+    chunk than the day it revises), and a file of an earlier year loaded last (days before everything read so far)."""
+    import numpy as np
+
+    folder.mkdir()
+    files = []
+    files.append(_write(folder / "govt_2031-01.csv", JAN))
+    for m in range(2, 13):
+        days = np.arange(f"2031-{m:02d}-01", f"2031-{m:02d}-06", dtype="datetime64[D]")
+        lines = ["date,3M,1Y,2Y,5Y,10Y"] + [f"{d},{4 + m / 100:.2f},4.20,4.30,4.50,4.80" for d in days
+                                            if np.is_busday(d)]
+        files.append(_write(folder / f"govt_2031-{m:02d}.csv", "\n".join(lines) + "\n"))
+    files.append(_write(folder / "govt_2031-01-restated.csv", RESTATE))
+    files.append(_write(folder / "govt_2030-12.csv", "date,3M,1Y\n2030-12-30,3.90,4.00\n2030-12-31,3.91,4.01\n"))
+    return files
+
+
+@pytest.mark.parametrize("chunk", [1, 3, 100], ids=["chunk-1", "chunk-3", "one-chunk"])
+def test_reading_ahead_in_a_second_process_records_the_same_archive(tmp_path, chunk):
+    # the reference is the plain single-process load of the same files, one chunk at a time
+    stores = {}
+    for read_ahead in (False, True):
+        root = tmp_path / f"ahead-{read_ahead}"
+        root.mkdir()
+        (root / "afterward.toml").write_text(SMALL_CONFIG, encoding="utf-8")
+        cfg = load_config(root / "afterward.toml")
+        files = _month_files(root / "in")
+        outs = load_files(cfg, files, chunk=chunk, read_ahead=read_ahead)
+        assert [o.status for o in outs] == ["loaded"] * len(files)
+        assert outs[-2].rows_revised == 2 and outs[-2].rows_unchanged == 3      # RESTATE: 1Y and 5Y revised
+        stores[read_ahead] = (
+            [(o.rows_read, o.rows_new, o.rows_revised, o.rows_unchanged, o.rows_rejected) for o in outs],
+            _q(cfg, "SELECT curve, as_of, tenor, maturity_date, rate, superseded_at IS NULL, "
+                    "replace(source_file, 'ahead-True', 'ahead-False') FROM quote_history "
+                    "ORDER BY ALL"),
+            _q(cfg, "SELECT load_id, sha256, rows_read, rows_accepted, rows_revised, rows_rejected, status FROM loads "
+                    "ORDER BY load_id"),
+        )
+    assert stores[True] == stores[False]
