@@ -46,7 +46,14 @@ def run_checks(cfg: Config, curve: str | None = None, first: object = None, last
             c = cfg.curve(name)
             now = utc_now()
             last_run = fetch_value(con, "SELECT max(ran_at) FROM check_run WHERE curve = ?", [name])
-            panel = read_quote_panel(con, name, list(c.tenor_labels), None, last)
+            read_from = None
+            if not all_days and last_run is not None and first is None:
+                read_from = _context_start(con, name, last_run, last)
+                if read_from is None:  # no quote changed since the last run
+                    summary.curves[name] = {"days_checked": 0, "findings": 0, "first_day": None, "last_day": None}
+                    _close_restated(con, name, now, last_run)
+                    continue
+            panel = read_quote_panel(con, name, list(c.tenor_labels), read_from, last)
             in_window = np.ones(len(panel), dtype=bool)
             if first is not None:
                 in_window &= panel.as_of >= np.datetime64(str(first), "D")
@@ -55,14 +62,20 @@ def run_checks(cfg: Config, curve: str | None = None, first: object = None, last
                 todo &= panel.recorded_at > np.datetime64(last_run, "us")
             if not todo.any():
                 summary.curves[name] = {"days_checked": 0, "findings": 0, "first_day": None, "last_day": None}
-                _close_restated(con, name, now)
+                _close_restated(con, name, now, last_run)
                 continue
             start = int(np.flatnonzero(todo)[0])
             lo = max(0, start - CONTEXT_DAYS)
             previous = (panel.as_of[lo:start], panel.rates[lo:start]) if start > lo else None
             rng = slice(start, len(panel))
             found = curve_checks(panel.as_of[rng], panel.tenors, panel.rates[rng], c, previous=previous)
-            episodes = inversion_episodes(panel.as_of, panel.tenors, panel.rates, c)
+            episodes_from = None if read_from is None else _episodes_from(con, name, panel, c)
+            if episodes_from is not None and episodes_from < panel.as_of[0]:
+                # an episode of the stored record may run on into the days read: recompute it whole
+                wider = read_quote_panel(con, name, list(c.tenor_labels), episodes_from, last)
+                episodes = inversion_episodes(wider.as_of, wider.tenors, wider.rates, c)
+            else:
+                episodes = inversion_episodes(panel.as_of, panel.tenors, panel.rates, c)
             # findings from this run cover days after the last context day (missing days included)
             bound = panel.as_of[start - 1] + np.timedelta64(1, "D") if start > 0 else panel.as_of[0]
             con.execute("BEGIN TRANSACTION")
@@ -81,13 +94,20 @@ def run_checks(cfg: Config, curve: str | None = None, first: object = None, last
                     })
                     con.execute("INSERT INTO finding SELECT curve, as_of, check_name, severity, tenor, detail, ?, "
                                 "NULL, NULL, NULL FROM rows", [now])
-                con.execute("DELETE FROM inversion_episode WHERE curve = ?", [name])
+                if episodes_from is None:
+                    con.execute("DELETE FROM inversion_episode WHERE curve = ?", [name])
+                else:
+                    # episodes that end before the recomputed span are final and stay
+                    keep_before = min(episodes_from, panel.as_of[0])
+                    con.execute("DELETE FROM inversion_episode WHERE curve = ? AND last_day >= CAST(? AS DATE)",
+                                [name, str(keep_before)])
+                    episodes = episodes[episodes["first_day"].to_numpy().astype("datetime64[D]") >= keep_before]
                 if len(episodes):
                     cols = ["curve", "short_tenor", "long_tenor", "first_day", "last_day", "days", "deepest_bp"]
                     # spreads are differences of quoted decimals: round off the float noise (1e-6 bp)
                     ep = episodes.assign(curve=name, deepest_bp=episodes["deepest_bp"].round(6))[cols]  # noqa: F841
                     con.execute("INSERT INTO inversion_episode SELECT * FROM ep")
-                _close_restated(con, name, now)
+                _close_restated(con, name, now, last_run)
                 con.execute("INSERT INTO check_run VALUES (?, ?, ?, ?, ?, ?, ?)",
                             [name, now, str(panel.as_of[start]), str(panel.as_of[-1]), len(panel) - start,
                              len(found), bool(all_days)])
@@ -100,17 +120,62 @@ def run_checks(cfg: Config, curve: str | None = None, first: object = None, last
     return summary
 
 
-def _close_restated(con, curve: str, now) -> None:  # noqa: ANN001
-    """Close load-time findings whose (day, tenor) has since received a new quote version."""
+def _context_start(con, curve: str, last_run: object, last: object) -> object:  # noqa: ANN001
+    """The first day to read for an incremental check: :data:`CONTEXT_DAYS` observed days before the
+    first day whose quotes changed since ``last_run`` (None when nothing changed)."""
+    bound = "" if last is None else " AND as_of <= CAST(? AS DATE)"
+    extra = [] if last is None else [str(last)]
+    changed = fetch_value(con, f"SELECT min(as_of) FROM quote_version WHERE curve = ? AND recorded_at > ?{bound}",
+                          [curve, last_run, *extra])
+    if changed is None:
+        return None
+    start = fetch_value(
+        con,
+        "SELECT min(as_of) FROM (SELECT DISTINCT as_of FROM quote_version WHERE curve = ? "
+        "AND superseded_at IS NULL AND as_of < ? ORDER BY as_of DESC LIMIT ?)",
+        [curve, changed, CONTEXT_DAYS],
+    )
+    return changed if start is None else start
+
+
+def _episodes_from(con, curve: str, panel, c) -> np.datetime64:  # noqa: ANN001
+    """The first day from which inversion episodes must be recomputed when only ``panel``'s days were read.
+
+    Runs are broken only by a day on which the pair was judged and not inverted. If a pair's first judged
+    day in the panel is inverted, its run may have begun before the panel: recompute from the first day of
+    the latest stored episode that began before it. Otherwise every earlier episode is final.
+    """
+    start = panel.as_of[0]
+    out = start
+    for short, long in c.inversion_pairs:
+        i, j = panel.tenors.index(short.label), panel.tenors.index(long.label)
+        spread = panel.rates[:, j] - panel.rates[:, i]
+        judged = np.flatnonzero(~np.isnan(spread))
+        if judged.size == 0 or spread[judged[0]] >= 0:
+            continue
+        began = fetch_value(con, "SELECT max(first_day) FROM inversion_episode WHERE curve = ? AND short_tenor = ? "
+                                 "AND long_tenor = ? AND first_day < CAST(? AS DATE)",
+                            [curve, short.label, long.label, str(start)])
+        if began is not None:
+            out = min(out, np.datetime64(began, "D"))
+    return out
+
+
+def _close_restated(con, curve: str, now, since: object = None) -> None:  # noqa: ANN001
+    """Close load-time findings whose (day, tenor) has since received a new quote version.
+
+    With ``since`` (the curve's last check), only versions recorded after it are looked at: an older
+    one closed its findings in that check.
+    """
     con.execute(
-        """
+        f"""
         UPDATE finding AS f SET resolved_at = ?, resolution = 'restated'
         WHERE f.curve = ? AND f.load_id IS NOT NULL AND f.resolved_at IS NULL
           AND EXISTS (SELECT 1 FROM quote_version q
                       WHERE q.curve = f.curve AND q.as_of = f.as_of AND (f.tenor IS NULL OR q.tenor = f.tenor)
-                        AND q.recorded_at > f.found_at)
+                        AND q.recorded_at > f.found_at{"" if since is None else " AND q.recorded_at > ?"})
         """,
-        [now, curve],
+        [now, curve] if since is None else [now, curve, since],
     )
 
 

@@ -290,7 +290,7 @@ def realize() -> None:
     from flows.realize_step import run_realize
 
     cfg = _config()
-    summary = run_realize(cfg)
+    summary = run_realize(cfg, full=True)
     console = _console()
     for name, info in summary.curves.items():
         again = f", {info['re_derived']:,} re-derived after a restatement" if info["re_derived"] else ""

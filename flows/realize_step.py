@@ -11,8 +11,12 @@ from __future__ import annotations
 
 from dataclasses import dataclass, field
 
-from pipeline.config import Config
-from pipeline.realize import realize
+import numpy as np
+import pandas as pd
+import pyarrow as pa
+
+from pipeline.config import Config, CurveConfig
+from pipeline.realize import due_target_window, realize
 from warehouse.connect import writer
 from warehouse.frames import read_frame
 from warehouse.loads import utc_now
@@ -33,7 +37,15 @@ class RealizeSummary:
         return sum(c["realized"] for c in self.curves.values())
 
 
-def run_realize(cfg: Config, curve: str | None = None) -> RealizeSummary:
+def run_realize(cfg: Config, curve: str | None = None, full: bool = False) -> RealizeSummary:
+    """Realise every forward whose target date has been observed; returns counts per curve.
+
+    Incremental unless ``full``: after the curve's last realisation (its latest ``realized_at``), only
+    forwards that a day built since can realise are considered - targets within the tolerance window of
+    a new day, forwards of a new as-of day, and forwards whose outcome was just superseded - so a daily
+    run does not grow with the history. ``full`` considers every forward without a current outcome
+    (what ``afterward realize`` does; it also catches a widened ``realize.tolerance_days``).
+    """
     summary = RealizeSummary()
     names = [curve] if curve else list(cfg.curves)
     with writer(cfg.store_path) as con:
@@ -42,34 +54,31 @@ def run_realize(cfg: Config, curve: str | None = None) -> RealizeSummary:
             now = utc_now()
             con.execute("BEGIN TRANSACTION")
             try:
-                stale = _supersede_stale(con, name, now)
-                observed = read_frame(con, "SELECT as_of FROM built_day WHERE curve = ? AND scenario = 'official' "
-                                           "ORDER BY as_of", [name], date_as_object=False)
+                since = None if full else fetch_value(con, "SELECT max(realized_at) FROM outcome WHERE curve = ?",
+                                                      [name])
+                stale = _supersede_stale(con, name, now, since)
+                observed = read_frame(con, "SELECT as_of, built_at FROM built_day WHERE curve = ? "
+                                           "AND scenario = 'official' ORDER BY as_of", [name], date_as_object=False)
                 days = observed["as_of"].to_numpy().astype("datetime64[D]")
                 info = {"realized": 0, "re_derived": stale, "pending": 0}
                 if len(days):
+                    scope, scope_params = _candidate_scope(observed, days, since, stale, now, c)
                     cand = read_frame(
                         con,
-                        """SELECT f.as_of, f.start_months, f.tenor_months, f.start_date, f.end_date, f.forward_rate
-                           FROM forwards f
-                           WHERE f.curve = ? AND f.start_date <= CAST(? AS DATE)
-                             AND NOT EXISTS (SELECT 1 FROM outcome o
-                                 WHERE o.superseded_at IS NULL AND o.curve = f.curve AND o.as_of = f.as_of
-                                   AND o.start_months = f.start_months AND o.tenor_months = f.tenor_months)""",
-                        [name, str(days[-1])], date_as_object=False,
+                        f"""WITH f AS (
+                                SELECT as_of, start_months, tenor_months, start_date, end_date, forward_rate
+                                FROM forwards WHERE curve = $curve AND start_date <= CAST($last AS DATE) {scope})
+                            SELECT f.* FROM f
+                            WHERE NOT EXISTS (SELECT 1 FROM outcome o
+                                WHERE o.superseded_at IS NULL AND o.curve = $curve
+                                  AND o.as_of >= (SELECT min(as_of) FROM f) AND o.as_of = f.as_of
+                                  AND o.start_months = f.start_months AND o.tenor_months = f.tenor_months)""",
+                        {"curve": name, "last": str(days[-1]), **scope_params}, date_as_object=False,
                     )
                     if len(cand):
-                        months = sorted({int(m) for m in cand["tenor_months"].unique()})
-                        zeros = read_frame(
-                            con,
-                            f"""SELECT as_of, tenor_months, zero_rate FROM zero_rate_built
-                                WHERE curve = ? AND scenario = 'official'
-                                  AND tenor_months IN ({', '.join(str(m) for m in months)})""",
-                            [name], date_as_object=False,
-                        )
                         for col in ("as_of", "start_date", "end_date"):
                             cand[col] = cand[col].to_numpy().astype("datetime64[D]")
-                        zeros["as_of"] = zeros["as_of"].to_numpy().astype("datetime64[D]")
+                        zeros = _zeros_for(con, name, cand)
                         out = realize(cand, zeros, days, c.calendar, c.tolerance_days)
                         if len(out):
                             rows = out.assign(curve=name)[OUTCOME_COLUMNS]  # noqa: F841 - read by DuckDB
@@ -78,12 +87,17 @@ def run_realize(cfg: Config, curve: str | None = None) -> RealizeSummary:
                                 "CAST(target_date AS DATE), CAST(observed_on AS DATE), forward_rate, realized_rate, "
                                 "spot_rate, error_bp, rw_error_bp, ?, NULL FROM rows ORDER BY as_of", [now])
                         info["realized"] = len(out)
-                    # pending = the candidates left unmatched plus every forward whose target lies after
-                    # the last observed day (it cannot have an outcome): the count of the
-                    # pending_forwards view without a second anti-join over the whole record
+                    # pending = every forward whose target lies after the last observed day (it cannot
+                    # have an outcome yet) plus those due but unmatched: counted without an anti-join over
+                    # the whole record
                     later = fetch_value(con, "SELECT count(*) FROM forwards WHERE curve = ? "
                                              "AND start_date > CAST(? AS DATE)", [name, str(days[-1])])
-                    info["pending"] = len(cand) - info["realized"] + int(later or 0)
+                    due = fetch_value(
+                        con,
+                        "SELECT (SELECT count(*) FROM forwards WHERE curve = ? AND start_date <= CAST(? AS DATE))"
+                        " - (SELECT count(*) FROM outcome WHERE curve = ? AND superseded_at IS NULL)",
+                        [name, str(days[-1]), name])
+                    info["pending"] = int(later or 0) + max(int(due or 0), 0)
                 else:
                     info["pending"] = int(fetch_value(con, "SELECT count(*) FROM pending_forwards WHERE curve = ?",
                                                       [name]) or 0)
@@ -95,13 +109,54 @@ def run_realize(cfg: Config, curve: str | None = None) -> RealizeSummary:
     return summary
 
 
-def _supersede_stale(con, curve: str, now) -> int:  # noqa: ANN001
+def _candidate_scope(observed: pd.DataFrame, days: np.ndarray, since: object, stale: int, now: object,
+                     c: CurveConfig) -> tuple[str, dict]:
+    """The extra WHERE clause (on forwards ``f``) that narrows the candidates to what changed since ``since``."""
+    if since is None:
+        return "", {}
+    built_at = observed["built_at"].to_numpy(dtype="datetime64[us]")
+    new_days = days[built_at > np.datetime64(since, "us")]
+    terms, params = [], {}
+    if len(new_days):
+        lo, _ = due_target_window(new_days, c.calendar, c.tolerance_days)
+        terms.append("start_date >= CAST($lo AS DATE)")
+        terms.append("as_of IN (SELECT as_of FROM built_day WHERE curve = $curve AND scenario = 'official' "
+                     "AND built_at > $since)")
+        params.update(lo=str(lo), since=since)
+    if stale:
+        terms.append("EXISTS (SELECT 1 FROM outcome s WHERE s.curve = $curve AND s.superseded_at = $now "
+                     "AND s.as_of = forwards.as_of AND s.start_months = forwards.start_months "
+                     "AND s.tenor_months = forwards.tenor_months)")
+        params["now"] = now
+    if not terms:
+        return "AND false", {}
+    return "AND (" + " OR ".join(terms) + ")", params
+
+
+def _zeros_for(con, curve: str, cand: pd.DataFrame) -> pd.DataFrame:  # noqa: ANN001
+    """Official zero rates of the candidates' tenors on their as-of dates and on every day from their first target."""
+    months = sorted({int(m) for m in cand["tenor_months"].unique()})
+    con.register("_candidate_days", pa.table({"as_of": pa.array(np.unique(cand["as_of"].to_numpy()),
+                                                                 type=pa.date32())}))
+    zeros = read_frame(
+        con,
+        f"""SELECT as_of, tenor_months, zero_rate FROM zero_rate_built
+            WHERE curve = ? AND scenario = 'official' AND tenor_months IN ({', '.join(str(m) for m in months)})
+              AND (as_of >= CAST(? AS DATE) OR as_of IN (SELECT as_of FROM _candidate_days))""",
+        [curve, str(cand["start_date"].min())], date_as_object=False,
+    )
+    con.unregister("_candidate_days")
+    zeros["as_of"] = zeros["as_of"].to_numpy().astype("datetime64[D]")
+    return zeros
+
+
+def _supersede_stale(con, curve: str, now, since: object = None) -> int:  # noqa: ANN001
     """Stamp superseded the outcomes whose days were rebuilt, withdrawn, or overtaken; returns the count.
 
     Written as anti-joins against the built days plus a join with only the days built since the
-    earliest current outcome: a correlated EXISTS with an OR took seconds a run at 50 years.
+    earliest current outcome (or since ``since``, the last realisation: a day rebuilt before it has
+    already superseded what it overtook): a correlated EXISTS with an OR took seconds a run at 50 years.
     """
-    before = fetch_value(con, "SELECT count(*) FROM outcome WHERE curve = ? AND superseded_at IS NULL", [curve])
     con.execute(
         """
         UPDATE outcome AS o SET superseded_at = $now
@@ -109,7 +164,8 @@ def _supersede_stale(con, curve: str, now) -> int:  # noqa: ANN001
             WITH built AS (SELECT as_of, built_at FROM built_day WHERE curve = $curve AND scenario = 'official'),
                  cur AS (SELECT as_of, start_months, tenor_months, target_date, observed_on, realized_at
                          FROM outcome WHERE curve = $curve AND superseded_at IS NULL),
-                 fresh AS (SELECT as_of, built_at FROM built WHERE built_at > (SELECT min(realized_at) FROM cur))
+                 fresh AS (SELECT as_of, built_at FROM built
+                           WHERE built_at > coalesce($since, (SELECT min(realized_at) FROM cur)))
             SELECT as_of, start_months, tenor_months FROM cur
             WHERE as_of NOT IN (SELECT as_of FROM built) OR observed_on NOT IN (SELECT as_of FROM built)
             UNION
@@ -122,7 +178,7 @@ def _supersede_stale(con, curve: str, now) -> int:  # noqa: ANN001
         WHERE o.curve = $curve AND o.superseded_at IS NULL AND o.as_of = s.as_of
           AND o.start_months = s.start_months AND o.tenor_months = s.tenor_months
         """,
-        {"now": now, "curve": curve},
+        {"now": now, "curve": curve, "since": since},
     )
-    after = fetch_value(con, "SELECT count(*) FROM outcome WHERE curve = ? AND superseded_at IS NULL", [curve])
-    return int((before or 0) - (after or 0))
+    return int(fetch_value(con, "SELECT count(*) FROM outcome WHERE curve = ? AND superseded_at = ?",
+                           [curve, now]) or 0)

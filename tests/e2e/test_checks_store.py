@@ -11,7 +11,7 @@ import datetime as dt
 import numpy as np
 import pytest
 
-from flows.check_step import run_checks
+from flows.check_step import CONTEXT_DAYS, run_checks
 from flows.steps import load_files
 from tests.e2e.stores import make_project, write_wide_csv
 
@@ -94,3 +94,51 @@ def test_check_is_incremental_and_all_days_rechecks(tmp_path):
     closed = p.value("SELECT count(*) FROM finding WHERE resolution = 're-checked'")
     assert closed == len(MISSING)
     assert p.value("SELECT min(as_of) FROM findings") == dt.date(2031, 12, 24)
+
+
+INVERSION_TOML = TOML.replace('tenors = ["1M", "3M", "1Y"]', 'tenors = ["1M", "3M", "1Y"]\n'
+                              'checks.inversion_pairs = [["3M", "1Y"], ["1M", "1Y"]]')
+
+
+def _record(p):
+    findings = p.sql("SELECT as_of, check_name, severity, tenor, detail FROM findings ORDER BY ALL")
+    episodes = p.sql("SELECT short_tenor, long_tenor, first_day, last_day, days, deepest_bp FROM inversion_episodes "
+                     "ORDER BY ALL")
+    return findings, episodes
+
+
+def test_incremental_checks_equal_a_full_recheck_day_by_day(tmp_path):
+    """Two years of weekdays arriving a month at a time, then single days: inversion episodes that run across
+    the incremental check's context boundary (long ones, with missing 1Y quotes that do not break a run), jumps
+    and gaps. After every arrival the incrementally checked store must hold the same open findings and the same
+    episodes as a copy re-checked in full (``all_days``): the full pass reads every day, so it is the reference."""
+    import pandas as pd
+
+    days = np.arange(np.datetime64("2030-01-01"), np.datetime64("2032-01-01"))
+    days = days[np.is_busday(days)]
+    rng = np.random.default_rng(7)
+    n = days.size
+    level = 3.0 + np.cumsum(rng.normal(0, 0.01, n))
+    slope = np.where((np.arange(n) % 520) < 150, 0.3, -0.2)       # inverted stretches longer than the context
+    rates = np.column_stack([level, level + 0.05, level + slope])
+    rates[rng.random(n) < 0.05, 2] = np.nan                          # a missing 1Y does not break a run
+    rates[[40, 300, 455], 0] += 1.2                                  # jumps
+    keep = rng.random(n) > 0.02                                      # missing days
+    days, rates = days[keep], rates[keep]
+    inc = make_project(tmp_path / "inc", INVERSION_TOML)
+    ref = make_project(tmp_path / "ref", INVERSION_TOML)
+    months = days.astype("datetime64[M]")
+    tail = np.flatnonzero(months == months[-1])[-8:]
+    batches = [(months == m) & (np.arange(days.size) < tail[0]) for m in np.unique(months)]
+    batches += [np.arange(days.size) == i for i in tail]
+    for k, sel in enumerate(batches):
+        for proj in (inc, ref):
+            f = write_wide_csv(proj.root / f"mm_{k:03d}.csv", days[sel], ["1M", "3M", "1Y"], rates[sel], "%.4f")
+            load_files(proj.cfg, [f])
+        run_checks(inc.cfg)
+        run_checks(ref.cfg, all_days=True)
+        (fi, ei), (fr, er) = _record(inc), _record(ref)
+        pd.testing.assert_frame_equal(fi, fr, obj=f"findings after batch {k}")
+        pd.testing.assert_frame_equal(ei, er, obj=f"episodes after batch {k}")
+    # the episodes did run across the context of an incremental check (300 observed days)
+    assert len(er) >= 2 and (er["days"] > CONTEXT_DAYS).any()

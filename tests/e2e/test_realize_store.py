@@ -237,3 +237,38 @@ def test_a_late_day_nearer_the_target_re_derives_and_realises_gap_forwards(flat,
     assert (m["observed_on"] == late).sum() > 0
     assert s["re_derived"] > 0 and s["pending"] == p.value("SELECT count(*) FROM pending_forwards")
     assert s["pending"] == int((expected["kind"] != "realised").sum())
+
+
+def _current(p) -> pd.DataFrame:
+    cols = ["as_of", "start_months", "tenor_months", "target_date", "observed_on", "forward_rate", "realized_rate",
+            "spot_rate", "error_bp", "rw_error_bp"]
+    return p.sql(f"SELECT {', '.join(cols)} FROM outcome WHERE superseded_at IS NULL ORDER BY ALL")
+
+
+def test_incremental_realisation_equals_a_full_pass(flat, tmp_path):
+    """A restated realised day, a late day loaded into the gap and a reject that withdraws a day, realised
+    after each change by the daily (incremental) pass on one copy and by the full pass on another: the
+    same current outcomes, the same count superseded, the same pending count. The full pass considers
+    every forward without an outcome, so it is the reference for what the narrowed candidate set must find."""
+    levels = flat[1]
+    copies = {mode: clone_project(flat[0], tmp_path / mode) for mode in ("daily", "full")}
+    changes = [
+        ("flat_restated_2030-06-14.csv", np.datetime64("2030-06-14"), float(levels.loc["2030-06-14"]) + 0.0005),
+        ("flat_late_2030-09-17.csv", np.datetime64("2030-09-17"), 0.0301),
+        ("flat_bad_2030-03-15.csv", np.datetime64("2030-03-15"), float(levels.loc["2030-03-15"]) + 0.03),
+    ]
+    for name, day, level in changes:
+        got = {}
+        for mode, p in copies.items():
+            f = write_wide_csv(p.root / name, [day], FLAT_TENORS, np.full((1, len(FLAT_TENORS)), level), "%.10f")
+            load_files(p.cfg, [f])
+            run_checks(p.cfg)
+            run_build(p.cfg)
+            s = run_realize(p.cfg, full=mode == "full").curves["flat"]
+            got[mode] = (s["realized"], s["re_derived"], s["pending"])
+        assert got["daily"] == got["full"], name
+        assert got["daily"][0] > 0, name                      # each change realised something
+        pd.testing.assert_frame_equal(_current(copies["daily"]), _current(copies["full"]))
+        assert copies["daily"].value("SELECT count(*) FROM outcome WHERE superseded_at IS NOT NULL") == \
+            copies["full"].value("SELECT count(*) FROM outcome WHERE superseded_at IS NOT NULL")
+    assert got["daily"][2] == copies["daily"].value("SELECT count(*) FROM pending_forwards")
