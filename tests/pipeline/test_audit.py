@@ -387,3 +387,143 @@ def test_as_days_round_trip_of_outputs():
     o = make_outcomes(50, 2, 1.0)
     s = summarize(o)
     assert as_days(s["first_as_of"].to_numpy())[0] == as_days(o["as_of"].to_numpy())[0]
+
+
+# ---------------------------------------------------------------- incremental state (pipeline.audit_state)
+# Reference: summarize / term_premium / overlap_horizon over the whole record (themselves checked
+# against statsmodels above), and statsmodels directly where named.
+from pipeline.audit_state import (  # noqa: E402
+    BAND,
+    TAIL_COLUMNS,
+    append_cell,
+    bartlett_cross,
+    build_cell,
+    cell_summary,
+    premium_increment,
+)
+
+STATE_RTOL = 1e-9  # incremental against full recompute
+
+
+def _cell_rows(o: pd.DataFrame) -> dict:
+    return {c: o[c].to_numpy() for c in TAIL_COLUMNS}
+
+
+def _grow(o: pd.DataFrame, first: int, steps: list[int], window: int | None = 250):
+    """Build on o[:first], then append chunks of sizes cycling through ``steps``; a None from
+    append_cell rebuilds from the record so far (what the store code does). Returns the state, the
+    number of rebuilds and the premium increments."""
+    state, tail = build_cell(_cell_rows(o.iloc[:first]), window=window)
+    i, j, rebuilds, premium = first, 0, 0, []
+    while i < len(o):
+        k = steps[j % len(steps)]
+        new = _cell_rows(o.iloc[i : i + k])
+        res = append_cell(state, tail, new, window=window)
+        if res is None:
+            rebuilds += 1
+            state, tail = build_cell(_cell_rows(o.iloc[: i + k]), window=window)
+        else:
+            if window:
+                premium.append(premium_increment(tail, new, window, res[0].premium_lags))
+            state, tail = res
+        i, j = i + k, j + 1
+    return state, rebuilds, premium
+
+
+def _assert_row_equal(got: dict, ref: pd.Series) -> None:
+    for c in SUMMARY_COLUMNS[4:]:
+        a, b = got[c], ref[c]
+        if c in ("n", "lags", "first_as_of", "last_as_of"):
+            assert a == b, c
+        elif c.endswith("pvalue") and np.isfinite(b) and b > 0:
+            assert np.log(a) == pytest.approx(np.log(b), rel=STATE_RTOL, abs=1e-12), c  # far-tail p-values
+        elif c.endswith("pvalue") and np.isfinite(b):
+            assert a < 1e-300, c  # underflowed to 0 on the reference side
+        elif np.isfinite(b):
+            assert a == pytest.approx(b, rel=STATE_RTOL, abs=1e-12), c
+        else:
+            assert not np.isfinite(a), c
+
+
+def test_bartlett_cross_equals_statsmodels():
+    """statsmodels' S_hac_simple on 11 columns (the state's cross moments), lags below and above n."""
+    rng = np.random.default_rng(2)
+    W = np.cumsum(rng.normal(size=(900, 11)), axis=0) * 0.1 + rng.normal(size=(900, 11))
+    for lags in (0, 5, 300, 1200):
+        np.testing.assert_allclose(bartlett_cross(W, lags), S_hac_simple(W, nlags=lags), rtol=1e-10)
+
+
+@pytest.mark.parametrize(("n", "h", "steps"), [(600, 1, [1]), (2500, 21, [1, 3, 1, 7]), (3000, 252, [1, 2, 40]),
+                                               (1500, 700, [1, 5])],
+                         ids=["h1-daily", "h21-mixed", "h252-batches", "h700-short"])
+def test_state_grown_day_by_day_equals_summarize(n, h, steps):
+    """Every statistic of every regime, the state appended a few rows at a time vs the whole record."""
+    o = make_outcomes(n, h, 35.0, seed=n + h)
+    ref = summarize(o)
+    masks = {"all": np.ones(n, bool), "inverted": o["inverted"].to_numpy(), "normal": ~o["inverted"].to_numpy()}
+    for regime, mask in masks.items():
+        sub = o.loc[mask].reset_index(drop=True)
+        state, _, _ = _grow(sub, len(sub) // 2, steps, 250 if regime == "all" else None)
+        _assert_row_equal(cell_summary(state), row_of(ref, regime))
+        # the overlap horizon from histogram + open rows equals the direct count
+        assert state.horizon == overlap_horizon(sub["as_of"], sub["target_date"])
+
+
+def test_state_with_a_steady_spread_matches_statsmodels():
+    """A forward-spot spread that barely moves (a steady slope): the Fama-Bliss SE, whose uncentred
+    sums would cancel, still equals statsmodels' HAC OLS."""
+    o = make_outcomes(800, 30, 10.0, seed=4, beta=0.0)
+    rng = np.random.default_rng(9)
+    o["forward_rate"] = o["spot_rate"] + 0.001 + rng.normal(0, 1e-6, len(o))
+    o["error_bp"] = (o["forward_rate"] - o["realized_rate"]) * 1e4
+    state, _, _ = _grow(o, 400, [1, 2])
+    got = cell_summary(state)
+    real, fwd, spot = (o[c].to_numpy() for c in ("realized_rate", "forward_rate", "spot_rate"))
+    fb = sm.OLS(real - spot, sm.add_constant(fwd - spot)).fit(cov_type="HAC", cov_kwds={"maxlags": got["lags"]})
+    assert got["fb_beta"] == pytest.approx(fb.params[1], rel=1e-8)
+    assert got["fb_beta_se"] == pytest.approx(fb.bse[1], rel=1e-8)
+    _assert_row_equal(got, row_of(summarize(o)))
+
+
+def test_premium_increments_equal_term_premium():
+    o = make_outcomes(2000, 130, 40.0, seed=8)
+    _, rebuilds, pieces = _grow(o, 1000, [1, 2, 1, 9])
+    assert rebuilds == 0
+    ref = term_premium(o, 250).set_index("as_of")
+    a = np.concatenate([p["as_of"] for p in pieces])
+    assert a.size == 1000  # one window per appended row
+    r = ref.loc[pd.DatetimeIndex(a)]
+    np.testing.assert_allclose(np.concatenate([p["premium_bp"] for p in pieces]), r["premium_bp"], rtol=STATE_RTOL)
+    se = np.concatenate([p["se_bp"] for p in pieces])
+    np.testing.assert_allclose(se * 1.959963984540054, r["upper_bp"] - r["premium_bp"], rtol=STATE_RTOL)
+
+
+def test_append_refuses_what_it_cannot_fold_in():
+    """A row not after the last as-of date, or a change of the Newey-West lag, means a recompute."""
+    o = make_outcomes(900, 21, 0.0, seed=1)
+    state, tail = build_cell(_cell_rows(o.iloc[:300]))
+    assert append_cell(state, tail, _cell_rows(o.iloc[299:301])) is None  # overlaps the last as-of date
+    assert append_cell(state, tail, _cell_rows(o.iloc[[301, 300]])) is None  # not in order
+    assert append_cell(state, tail, _cell_rows(o.iloc[300:301])) is not None
+    # more rows than the record holds, with targets much further out: the median count moves
+    far = o.iloc[300:900].copy()
+    far["target_date"] = far["target_date"] + np.timedelta64(400, "D")
+    assert overlap_horizon(o["as_of"], pd.concat([o["target_date"][:300], far["target_date"]])) != state.horizon
+    assert append_cell(state, tail, _cell_rows(far)) is None
+
+
+def test_median_band_gives_up_when_the_median_leaves_it():
+    """New errors all above the band push the median rank out of it: until then the median is exact."""
+    o = make_outcomes(3000, 1, 0.0, seed=6)
+    state, tail = build_cell(_cell_rows(o.iloc[:1000]))
+    high = o.iloc[1000:].copy()
+    high["error_bp"] = 1e4 + np.arange(len(high))  # far above every earlier error
+    errors = list(o["error_bp"].iloc[:1000])
+    for i in range(len(high)):
+        res = append_cell(state, tail, _cell_rows(high.iloc[i : i + 1]))
+        if res is None:
+            break
+        state, tail = res
+        errors.append(high["error_bp"].iloc[i])
+        assert cell_summary(state)["median_error_bp"] == np.median(errors)
+    assert res is None and BAND <= i <= 2 * BAND + 2  # the rank moves half a place a row
