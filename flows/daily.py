@@ -35,7 +35,7 @@ from prefect.artifacts import create_table_artifact
 from prefect.cache_policies import NO_CACHE
 from prefect.tasks import exponential_backoff
 
-from flows.audit_step import run_audit
+from flows.audit_step import refresh_audit_incremental, run_audit
 from flows.build_step import BuildSummary, run_build
 from flows.check_step import CheckSummary, run_checks
 from flows.realize_step import RealizeSummary, run_realize
@@ -337,27 +337,20 @@ def realize_forwards(cfg: Config) -> RealizeSummary:
     return run_realize(cfg)
 
 
-def stale_audits(cfg: Config) -> list[str]:
-    """Curves whose stored audit predates their latest outcome (or that have outcomes and no audit)."""
-    out = []
-    with writer(cfg.store_path) as con:
-        for name in cfg.curves:
-            latest, audited = con.execute(
-                "SELECT (SELECT max(realized_at) FROM outcome WHERE curve = ?), "
-                "(SELECT max(data_version) FROM audit_result WHERE curve = ?)", [name, name]).fetchone()
-            if latest is not None and (audited is None or audited < latest):
-                out.append(name)
-    return out
-
-
 @task(name="audit", cache_policy=NO_CACHE, retries=2, retry_delay_seconds=exponential_backoff(backoff_factor=1),
       retry_condition_fn=_retry_condition)
 def refresh_audit(cfg: Config, force: bool = False) -> list[str]:
-    """Recompute the audit of the curves whose outcomes changed since their last audit; returns them."""
-    names = list(cfg.curves) if force else stale_audits(cfg)
-    for name in names:
-        run_audit(cfg, name)
-    return names
+    """Bring the audit up to date with the outcomes realised since the last one; returns the curves it changed.
+
+    Incremental (:func:`flows.audit_step.refresh_audit_incremental`: only the new outcomes are folded into
+    the stored running state, with the same rows as a full recompute); ``force`` recomputes every curve.
+    """
+    if force:
+        for name in cfg.curves:
+            run_audit(cfg, name)
+        return list(cfg.curves)
+    done = refresh_audit_incremental(cfg)
+    return [name for name, d in done.items() if d.mode != "unchanged"]
 
 
 def findings_since(cfg: Config, since: object) -> dict[tuple[str, str], int]:
