@@ -52,6 +52,16 @@ class Block:
         """The limit of the continuous zero rate as ``t -> 0`` (``(G,)``): the short rate."""
         return self.inst_forward(np.zeros((self.times.shape[0], 1)))[:, 0]
 
+    def subset(self, rows: np.ndarray) -> Block:
+        """The block of only ``rows`` (indices into its ``G`` curves), each curve unchanged."""
+        return type(self)(self.times[rows], self.zero_cc[rows])
+
+    def forwards_nonnegative(self) -> np.ndarray:
+        """``(G,)`` bool: True where the method's construction guarantees an instantaneous forward
+        ``f(t) >= 0`` for every ``t >= 0`` (so discount factors never rise with maturity). False
+        means "not known", not "negative somewhere"; the default knows nothing."""
+        return np.zeros(self.times.shape[0], dtype=bool)
+
 
 def segment_index(knots: np.ndarray, t: np.ndarray) -> np.ndarray:
     """For knots ``(G, n)`` and times ``(G, K)``: the index ``j`` in ``[1, n-1]`` of the segment
@@ -136,6 +146,33 @@ class CurveSet:
     def ln_discount(self, t: object) -> np.ndarray:
         """``ln D(t)`` for times ``t`` ``(D, K)``."""
         return self._apply(self._times(t), lambda b, x: b.ln_discount(x))
+
+    def ln_discount_rows(self, rows: object, t: object) -> np.ndarray:
+        """``ln D(t)`` of only the days ``rows`` (``(R,)`` distinct indices into the ``D`` days) for
+        times ``t`` ``(R, K)`` (or ``(K,)`` shared): ``ln_discount(full)[rows]`` where ``full`` holds
+        ``t`` in those rows, without evaluating the other days. NaN for rows that are not ok."""
+        rows = np.asarray(rows, dtype=np.int64).reshape(-1)
+        tt = np.asarray(t, dtype=float)
+        tt = np.broadcast_to(tt.reshape(1, -1) if tt.ndim == 1 else tt, (rows.size, tt.shape[-1]))
+        out = np.full(tt.shape, np.nan)
+        where = np.full(len(self), -1, dtype=np.int64)
+        where[rows] = np.arange(rows.size)
+        for idx, block in self._blocks:  # one block per pattern of tenors, not per day
+            pos = where[idx]
+            mine = pos >= 0
+            if mine.all():
+                out[pos] = block.ln_discount(tt[pos])
+            elif mine.any():
+                out[pos[mine]] = block.subset(np.flatnonzero(mine)).ln_discount(tt[pos[mine]])
+        return out
+
+    def forwards_nonnegative(self) -> np.ndarray:
+        """``(D,)`` bool: True on ok days whose method guarantees ``f(t) >= 0`` for all ``t >= 0``
+        (see :meth:`Block.forwards_nonnegative`); such a curve cannot fail a shape check."""
+        out = np.zeros(len(self), dtype=bool)
+        for idx, block in self._blocks:
+            out[idx] = block.forwards_nonnegative()
+        return out
 
     def discount(self, t: object) -> np.ndarray:
         """Discount factors ``D(t)`` for year fractions ``t`` ``(D, K)`` from each as-of date."""

@@ -45,3 +45,11 @@ class LinearZeroBlock(Block):
     def inst_forward(self, t: np.ndarray) -> np.ndarray:
         r, s = self._zero(t)
         return np.where(t > self.times[:, -1:], self._f_last[:, None], r + t * s)
+
+    def forwards_nonnegative(self) -> np.ndarray:
+        # f = d(r t)/dt = r + t r' is linear in t on each segment (r is), r_1 before the first node and
+        # f_n after the last: its minimum is one of the segment ends, seen from inside the segment
+        x, y, s = self.times, self.zero_cc, self._slope
+        left = y[:, :-1] + s * x[:, :-1]
+        right = y[:, 1:] + s * x[:, 1:]
+        return (y[:, 0] >= 0.0) & np.all(left >= 0.0, axis=1) & np.all(right >= 0.0, axis=1)

@@ -33,3 +33,6 @@ class LogLinearDiscountBlock(Block):
 
     def zero_at_zero(self) -> np.ndarray:
         return self._fwd[:, 0].copy()
+
+    def forwards_nonnegative(self) -> np.ndarray:
+        return np.all(self._fwd >= 0.0, axis=1)  # the forward is flat on each segment and beyond

@@ -122,6 +122,22 @@ def _evaluate(coef: np.ndarray, x: np.ndarray, g0: np.ndarray, g1: np.ndarray, w
     return g, G
 
 
+def _integral_table(table: np.ndarray) -> np.ndarray:
+    """From the interval table (rows: the 8 sector coefficients, x0, h, fd, lnd0, g0, g1) the rows
+    ``ln_discount`` needs: ``eta``, the left piece's ``G`` as ``x (p1 + x (p2 + x p3))``, ``G(eta)``,
+    ``a_r``, ``c_r / 3``, ``x0``, ``h``, ``fd``, ``lnd0``.
+
+    The left piece is expanded about 0: every term is of the order ``|g| x`` on ``[0, eta]`` (its
+    large coefficients meet powers of ``x <= eta``), so nothing cancels; the right piece stays about
+    ``eta``, where an expansion would cancel ``1 / (1 - eta)^2`` terms.
+    """
+    eta, e_l, a_l, b_l, c_l, a_r, c_r, g_eta, x0, h, fd, lnd0 = table[:12]
+    p1 = a_l - b_l * e_l + c_l * e_l * e_l
+    p2 = 0.5 * b_l - c_l * e_l
+    p3 = c_l / 3.0
+    return np.stack([eta, p1, p2, p3, g_eta, a_r, c_r / 3.0, x0, h, fd, lnd0])
+
+
 def sector_g(g0: np.ndarray, g1: np.ndarray, x: np.ndarray) -> tuple[np.ndarray, np.ndarray]:
     """Hagan-West ``g(x)`` and its integral ``G(x) = integral_0^x g`` on ``x in [0, 1]``.
 
@@ -136,6 +152,7 @@ class MonotoneConvexBlock(Block):
 
     def __init__(self, times: np.ndarray, zero_cc: np.ndarray, collar: bool = True) -> None:
         super().__init__(times, zero_cc)
+        self._collar = collar
         self._x, self._lnd, self._fd, self._f = knot_forwards(self.times, self.zero_cc, collar)
         g0 = self._f[:, :-1] - self._fd
         g1 = self._f[:, 1:] - self._fd
@@ -146,6 +163,7 @@ class MonotoneConvexBlock(Block):
                                                    axis=-1)], axis=-1
         ).reshape(-1, _N_COEF + 6).T.copy()  # (coefficients, G * intervals): contiguous gathers
         self._nseg = h.shape[1]
+        self._lntable = _integral_table(self._table)
 
     @property
     def knot_forwards(self) -> np.ndarray:
@@ -156,6 +174,16 @@ class MonotoneConvexBlock(Block):
     def discrete_forwards(self) -> np.ndarray:
         """``(G, n)`` discrete forwards ``fd_i`` between consecutive nodes (from ``t = 0``)."""
         return self._fd.copy()
+
+    def subset(self, rows: np.ndarray) -> MonotoneConvexBlock:
+        return MonotoneConvexBlock(self.times[rows], self.zero_cc[rows], self._collar)
+
+    def forwards_nonnegative(self) -> np.ndarray:
+        # Hagan & West's positivity result: with every discrete forward positive, the collar keeps each
+        # knot forward in [0, 2 min(fd_i, fd_i+1)] and then every sector's f stays >= 0; flat f_n beyond
+        if not self._collar:
+            return np.zeros(self.times.shape[0], dtype=bool)
+        return np.all(self._fd > 0.0, axis=1)
 
     def locate(self, t: np.ndarray) -> np.ndarray:
         rows = np.arange(t.shape[0])[:, None] * self._nseg
@@ -168,8 +196,14 @@ class MonotoneConvexBlock(Block):
         return x0, h, fd, lnd0, g, G
 
     def ln_discount(self, t: np.ndarray, loc: np.ndarray | None = None) -> np.ndarray:
-        x0, h, fd, lnd0, _, G = self._local(t, loc, want_g=False)
-        inside = lnd0 - fd * (t - x0) - h * G
+        eta, p1, p2, p3, g_eta, a_r, c_r3, x0, h, fd, lnd0 = self._lntable[:, self.locate(t) if loc is None else loc]
+        dt = t - x0
+        x = np.clip(dt / h, 0.0, 1.0)
+        w = x - eta
+        G = np.where(x <= eta, x * (p1 + x * (p2 + x * p3)), g_eta + w * (a_r + c_r3 * (w * w)))
+        # the ends exactly: keeps node values and forward continuity free of rounding in the sectors
+        G[(x <= 0.0) | (x >= 1.0)] = 0.0
+        inside = lnd0 - fd * dt - h * G
         x_n, l_n, f_n = self._x[:, -1:], self._lnd[:, -1:], self._f[:, -1:]
         out = np.where(t > x_n, l_n - f_n * (t - x_n), inside)
         return np.where(t < 0.0, -self._f[:, :1] * t, out)

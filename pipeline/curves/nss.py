@@ -134,3 +134,6 @@ class NSSBlock(Block):
 
     def zero_at_zero(self) -> np.ndarray:
         return self.params[:, 0] + self.params[:, 1]
+
+    def subset(self, rows: np.ndarray) -> NSSBlock:
+        return NSSBlock(self.params[rows], self.times[rows], self.zero_cc[rows])
