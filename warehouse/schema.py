@@ -45,14 +45,17 @@ def schema_version(con: duckdb.DuckDBPyConnection) -> int:
 
 
 def apply_schema(con: duckdb.DuckDBPyConnection) -> int:
-    """Apply every schema file newer than the store's version, each in its own transaction."""
+    """Apply every schema file the store has not recorded yet, in order, each in its own transaction."""
     con.execute(
         "CREATE TABLE IF NOT EXISTS schema_migration (version INTEGER PRIMARY KEY, name VARCHAR NOT NULL, "
         "applied_at TIMESTAMP NOT NULL DEFAULT current_timestamp)"
     )
-    current = schema_version(con)
+    # every file not yet recorded, in order: a store that skipped a number (a file added below the
+    # newest one it has) still gets it
+    applied = {int(v) for (v,) in con.execute("SELECT version FROM schema_migration").fetchall()}
+    current = max(applied, default=0)
     for version, path in SCHEMA_FILES():
-        if version <= current:
+        if version in applied:
             continue
         con.execute("BEGIN TRANSACTION")
         try:
@@ -62,5 +65,5 @@ def apply_schema(con: duckdb.DuckDBPyConnection) -> int:
         except BaseException:
             con.execute("ROLLBACK")
             raise
-        current = version
+        current = max(current, version)
     return current
