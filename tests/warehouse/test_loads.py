@@ -224,3 +224,22 @@ def test_reading_ahead_in_a_second_process_records_the_same_archive(tmp_path, ch
                     "ORDER BY load_id"),
         )
     assert stores[True] == stores[False]
+
+
+def test_a_schema_file_numbered_below_the_newest_applied_is_still_applied(project):
+    # a store that reached a later version before a lower-numbered file existed (here: the audit state
+    # tables of 006 dropped and their record removed) gets that file on its next connection
+    from warehouse.connect import writer
+
+    cfg = load_config(project / "afterward.toml")
+    load_files(cfg, [_write(project / "govt_2031-01.csv", JAN)])
+    with duckdb.connect(str(cfg.store_path)) as con:
+        top = con.execute("SELECT max(version) FROM schema_migration").fetchone()[0]
+        assert top >= 7
+        con.execute("DELETE FROM schema_migration WHERE version = 6")
+        for t in ("audit_state_curve", "audit_state_cell", "audit_state_tail"):
+            con.execute(f"DROP TABLE {t}")
+    with writer(cfg.store_path):
+        pass
+    assert _q(cfg, "SELECT count(*) FROM schema_migration WHERE version = 6")[0][0] == 1
+    assert _q(cfg, "SELECT count(*) FROM information_schema.tables WHERE table_name = 'audit_state_cell'")[0][0] == 1
