@@ -35,10 +35,8 @@ from prefect.utilities.annotations import quote
 
 from flows import build_step
 from flows.daily import _retry_condition, check_quotes, realize_forwards, refresh_audit
-from pipeline.checks import curve_shape_checks
 from pipeline.config import Config, CurveConfig, load_config
-from pipeline.curves import build_curves
-from pipeline.forwards import forward_surface, zero_rate_table
+from pipeline.forwards import ForwardGrid, ZeroGrid
 from warehouse.connect import writer
 from warehouse.frames import QuotePanel, read_frame, read_quote_panel
 
@@ -106,11 +104,9 @@ class ChunkJob:
 
 @dataclass
 class ChunkResult:
-    """A built chunk: per-day ``ok`` and the frames the build step's writer stores.
-
-    ``zeros``: :func:`pipeline.forwards.zero_rate_table` rows; ``forwards``:
-    :func:`pipeline.forwards.forward_surface` rows; ``shape``: curve-shape findings (or None);
-    ``params``: fitted parameters of the days built (parametric methods, else None).
+    """A built chunk: per-day ``ok`` and what the build step's writer stores (see
+    :class:`flows.build_step.BuiltDays`: zero rates and forwards as arrays, which travel between
+    processes far more cheaply than frames of rows).
     """
 
     curve: str
@@ -120,8 +116,8 @@ class ChunkResult:
     as_of: np.ndarray
     recorded_at: np.ndarray
     ok: np.ndarray
-    zeros: pd.DataFrame
-    forwards: pd.DataFrame
+    zeros: ZeroGrid
+    forwards: ForwardGrid
     shape: pd.DataFrame | None
     params: np.ndarray | None
     reasons: dict[str, int] = field(default_factory=dict)
@@ -175,23 +171,9 @@ def compute_chunk(job: ChunkJob) -> ChunkResult:
     Rates are decimals in the curve's own compounding and day count (``*_cc``: continuous).
     """
     t = time.perf_counter()
-    c = job.config
-    cs = build_curves(job.as_of, list(job.tenors), job.rates, c, method=job.method, warm_start=job.warm)
-    ok = np.asarray(cs.ok, dtype=bool)
-    reasons: dict[str, int] = {}
-    for r in (cs.reason[i] for i in np.flatnonzero(~ok)):
-        reasons[r] = reasons.get(r, 0) + 1
-    zero_tenors = sorted(set(c.tenors) | set(c.forward_tenors))
-    zeros = zero_rate_table(cs, zero_tenors, c)
-    fwd = forward_surface(cs, c)
-    shape = None
-    if ok.any():
-        grid_times = build_step._grid_times(max(x.approx_days for x in c.tenors) / 365.25)
-        grid = np.tile(grid_times, (len(ok), 1))
-        shape = curve_shape_checks(cs.as_of[ok], grid[ok], cs.discount(grid)[ok], c)
-    params = cs.params[ok] if cs.params is not None else None
-    return ChunkResult(job.curve, job.index, job.method, job.scenario, job.as_of, job.recorded_at, ok, zeros, fwd,
-                       shape, params, reasons, time.perf_counter() - t)
+    b = build_step.compute_days(job.as_of, list(job.tenors), job.rates, job.config, job.method, job.warm)
+    return ChunkResult(job.curve, job.index, job.method, job.scenario, job.as_of, job.recorded_at, b.ok, b.zeros,
+                       b.forwards, b.shape, b.params, b.reasons, time.perf_counter() - t)
 
 
 @task(name="compute chunk", cache_policy=NO_CACHE)

@@ -65,6 +65,38 @@ def _grid_times(max_years: float) -> np.ndarray:
     return months[months <= max(24, int(np.ceil(max_years * 12)))] / 12.0
 
 
+@dataclass
+class BuiltDays:
+    """What one batch of days builds, ready for :func:`_write_chunk`: ``ok`` ``(D,)`` per day, the zero
+    rates and forward surface of the days built (arrays, cheap to send between processes), curve-shape
+    findings (or None), fitted parameters of the days built (parametric methods, else None), and the
+    count of failures by reason."""
+
+    ok: np.ndarray
+    zeros: ZeroGrid
+    forwards: ForwardGrid
+    shape: pd.DataFrame | None
+    params: np.ndarray | None
+    reasons: dict[str, int]
+
+
+def compute_days(as_of: np.ndarray, tenors: list[str], rates: np.ndarray, c: CurveConfig, method: str,
+                 warm: np.ndarray | None = None) -> BuiltDays:
+    """Build ``(D,)`` days of ``(D, T)`` quotes (decimals as quoted) with ``method``: pure, no store.
+
+    The one computation behind ``build`` and the backfill's parallel chunks, so both store the same rows.
+    """
+    cs = build_curves(as_of, tenors, rates, c, method=method, warm_start=warm)
+    ok = np.asarray(cs.ok, dtype=bool)
+    reasons: dict[str, int] = {}
+    for r in (cs.reason[i] for i in np.flatnonzero(~ok)):
+        reasons[r] = reasons.get(r, 0) + 1
+    zero_tenors = sorted(set(c.tenors) | set(c.forward_tenors))
+    grid_times = _grid_times(max(t.approx_days for t in c.tenors) / 365.25)
+    return BuiltDays(ok, zero_grid(cs, zero_tenors, c), forward_grid(cs, c), _shape_findings(cs, grid_times, c),
+                     cs.params[ok] if cs.params is not None else None, reasons)
+
+
 def run_build(cfg: Config, curve: str | None = None, first: object = None, last: object = None,
               rebuild: bool = False, method: str | None = None,
               on_progress: Callable[[str, int, int], None] | None = None) -> BuildSummary:
@@ -89,19 +121,13 @@ def run_build(cfg: Config, curve: str | None = None, first: object = None, last:
                     "withdrawn": withdrawn, "scenario": scenario, "method": use, "reasons": {}}
             panel = _read_due_quotes(con, name, list(c.tenor_labels), due)
             warm = _last_params(con, name, scenario) if use == "nss" else None
-            zero_tenors = sorted(set(c.tenors) | set(c.forward_tenors))
-            grid_times = _grid_times(max(t.approx_days for t in c.tenors) / 365.25)
             quoted = set(c.tenor_labels)
             for k in range(0, total, CHUNK_DAYS):
                 part = panel.select(slice(k, k + CHUNK_DAYS))
-                cs = build_curves(part.as_of, panel.tenors, part.rates, c, method=use, warm_start=warm)
-                ok = np.asarray(cs.ok, dtype=bool)
-                for r in (cs.reason[i] for i in np.flatnonzero(~ok)):
-                    info["reasons"][r] = info["reasons"].get(r, 0) + 1
-                zeros = zero_grid(cs, zero_tenors, c)
-                fwd = forward_grid(cs, c)
-                shape = _shape_findings(cs, grid_times, c)
-                params = cs.params[ok] if cs.params is not None else None
+                built = compute_days(part.as_of, panel.tenors, part.rates, c, use, warm)
+                ok, zeros, fwd, shape, params = built.ok, built.zeros, built.forwards, built.shape, built.params
+                for r, n in built.reasons.items():
+                    info["reasons"][r] = info["reasons"].get(r, 0) + n
                 if params is not None and len(params):
                     warm = params[-1]
                 _write_chunk(con, name, scenario, use, version, part, ok, zeros, fwd, shape, params, quoted)

@@ -103,6 +103,6 @@ def test_a_chunk_is_pure_computation_on_what_the_plan_read(loaded_store, tmp_pat
     assert {j.curve for j in jobs} == set(cfg.curves)
     assert all(j.days <= 10 for j in jobs)
     a, b = compute_chunk(jobs[0]), compute_chunk(jobs[0])
-    pd.testing.assert_frame_equal(a.forwards, b.forwards)
+    pd.testing.assert_frame_equal(a.forwards.frame(), b.forwards.frame())
     c = cfg.curve(jobs[0].curve)
     assert len(a.forwards) == int(a.ok.sum()) * len(c.forward_starts) * len(c.forward_tenors)
