@@ -11,10 +11,11 @@ Two ways to the same rows of ``audit_summary`` and ``term_premium``:
 * :func:`refresh_audit_incremental` is the daily path: it folds only the outcomes realised since
   the state was stored into it, appends the term-premium rows of the windows that end at them, and
   rewrites the curve's summary rows from the state. A cell (start x tenor) is recomputed from its
-  record when an assumption fails (a new outcome not after the cell's last as-of date, a changed
-  Newey-West lag, an exhausted median band); the whole curve is, when outcomes were superseded
-  since (a restatement), when the counts do not add up, or when the state is missing or was built
-  for another premium window or inversion pair.
+  record when an assumption fails (a new outcome not after the cell's last as-of date, a
+  Newey-West lag outside the cell's stored lag band, an exhausted median band); the whole curve is,
+  when outcomes were superseded since (a restatement), when the counts do not add up, or when the
+  state is missing, was stored in an older layout (without the lag band, sql/008) or was built for
+  another premium window or inversion pair.
 """
 
 from __future__ import annotations
@@ -35,12 +36,13 @@ from warehouse.query import fetch_one
 
 __all__ = ["STATE_FORMAT", "AuditRefresh", "read_outcomes", "refresh_audit_incremental", "run_audit"]
 
-STATE_FORMAT = 1  # bump when CellState's layout or meaning changes: stored states are then rebuilt
+STATE_FORMAT = 2  # bump when CellState's layout or meaning changes: stored states are then rebuilt
 _REGIMES = ("all", "inverted", "normal")
 _KEY = ["start_months", "tenor_months"]
 _PREMIUM = ["curve", "as_of", "start_months", "tenor_months", "window_days", "premium_bp", "lower_bp", "upper_bp"]
 _INT_FIELDS = {"n", "horizon", "lags", "premium_lags", "n_moved", "n_hit", "band_below", "band_above"}
-_LIST_TYPES = {"sums": pa.float64(), "cross_moments": pa.float64(), "hist": pa.int64(), "band": pa.float64()}
+_LIST_TYPES = {"sums": pa.float64(), "cross_moments": pa.float64(), "hist": pa.int64(), "band": pa.float64(),
+               "lag_band": pa.int64(), "lag_cross": pa.float64()}
 
 
 @dataclass
@@ -378,6 +380,10 @@ def _refresh_curve(con, cfg: Config, name: str, now) -> AuditRefresh:  # noqa: A
     fmt, window_days, pair, seen_realized, seen_superseded, n_current, data_version = meta
     if fmt != STATE_FORMAT or window_days != w or pair != _inversion_label(c):
         return full("state built for another format, premium window or inversion pair")
+    older = fetch_one(con, "SELECT count(*) FROM audit_state_cell WHERE curve = ? AND (lag_band IS NULL OR "
+                           "lag_cross IS NULL OR len(lag_band) = 0)", [name])
+    if older and older[0]:
+        return full("state stored in an older layout (without the lag band)")
     if seen[1] is not None and (seen_superseded is None or seen[1] > seen_superseded):
         return full("outcomes superseded since the state was stored")
     span = fetch_one(con, "SELECT min(as_of), max(as_of) FROM outcome WHERE curve = ? AND superseded_at IS NULL "

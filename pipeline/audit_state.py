@@ -19,6 +19,13 @@ Why this is exact:
   ``cross_moments = sum_{s,t} (1 - |t-s|/(L+1))_+ W_s W_t'`` (P x P) are all the HAC figures need.
   A new row t adds ``W_t W_t' + W_t v_t' + v_t W_t'`` with ``v_t = sum_{j=1..L} (1 - j/(L+1))
   W_{t-j}``: only the last L rows are needed, and they are in the tail.
+* The lag L moves with h, and h, a median of integer counts rounded half up, flips by one from
+  day to day when the two middle counts of an even-sized record differ (504 and 505 give 505, the
+  odd-sized record after it 504). So the state keeps the cross moments for every lag of a band
+  (``lag_band``: the build-time lag L0 and :data:`LAG_BAND` lags on each side, clipped at 0), each
+  updated on append by the rule above with its own lag (the tail holds the band's largest lag of
+  rows). A new L inside the band takes that lag's matrix; only outside it does the update give up
+  (and the recompute centres a new band on the new lag).
 * The overlap horizon h (:func:`pipeline.audit.overlap_horizon`) is a median of counts. A row whose
   target date is on or before the cell's last as-of date has a final integer count (later as-of
   dates lie after its target), kept in a histogram; the rows whose target lies beyond it ("open"
@@ -31,8 +38,8 @@ Why this is exact:
   squares and absolute values, min/max and hit counts are plain running aggregates.
 
 :func:`append_cell` returns ``None`` whenever an assumption fails: a new row is not after the cell's
-last as-of date, the Newey-West lag ``L = max(h-1, 0)`` (or the term premium's capped lag) changed
-because h changed, or the median band ran out. The caller then recomputes that cell in full.
+last as-of date, the Newey-West lag ``L = max(h-1, 0)`` left the lag band (or the term premium's
+capped lag changed) because h changed, or the median band ran out. The caller then recomputes that cell in full.
 
 Rates are decimals, errors bp; dates ``datetime64[D]``. Inputs are never modified.
 """
@@ -51,11 +58,13 @@ from pipeline.dates import as_days
 
 __all__ = [
     "BAND",
+    "LAG_BAND",
     "MONOMIALS",
     "TAIL_COLUMNS",
     "CellState",
     "append_cell",
     "bartlett_cross",
+    "bartlett_cross_band",
     "build_cell",
     "cell_summary",
     "horizon_from_counts",
@@ -67,6 +76,7 @@ _ONE, _E, _D, _F, _R, _FF, _FR, _S, _V, _SS, _SV = range(len(MONOMIALS))
 P = len(MONOMIALS)
 TAIL_COLUMNS = ("as_of", "target_date", "forward_rate", "realized_rate", "spot_rate", "error_bp", "rw_error_bp")
 BAND = 256  # errors kept on each side of the median rank
+LAG_BAND = 2  # Newey-West lags kept on each side of the build-time lag
 _NAN = float("nan")
 
 
@@ -81,6 +91,8 @@ class CellState:
     overlap count is final and equals ``hist_from + i``. ``band`` holds sorted errors (bp); ``band_below`` /
     ``band_above`` count the errors before / after it in sorted order. ``premium_lags`` is the term
     premium's lag (``min(lags, window - 1)``) for the cell that carries the premium, else -1.
+    ``lag_band`` (B,) lists the lags, ascending, whose cross moments ``lag_cross`` (B, P, P) are kept
+    (``lags`` among them; ``cross_moments`` is its matrix).
     """
 
     n: int
@@ -117,11 +129,14 @@ class CellState:
     band: np.ndarray
     band_below: int
     band_above: int
+    lag_band: np.ndarray
+    lag_cross: np.ndarray
 
     def as_record(self) -> dict[str, Any]:
-        """Plain values and 1-D arrays (``cross_moments`` flattened), for storage."""
+        """Plain values and 1-D arrays (``cross_moments``, ``lag_cross`` flattened), for storage."""
         out = {f.name: getattr(self, f.name) for f in fields(self)}
         out["cross_moments"] = np.asarray(self.cross_moments, dtype=float).ravel()
+        out["lag_cross"] = np.asarray(self.lag_cross, dtype=float).ravel()
         return out
 
     @classmethod
@@ -135,6 +150,10 @@ class CellState:
         kw["cross_moments"] = np.asarray(kw["cross_moments"], dtype=float).reshape(P, P).copy()
         kw["hist"] = np.asarray(kw["hist"], dtype=np.int64).copy()
         kw["band"] = np.asarray(kw["band"], dtype=float).copy()
+        kw["lag_band"] = np.asarray(kw["lag_band"], dtype=np.int64).copy()
+        kw["lag_cross"] = np.asarray(kw["lag_cross"], dtype=float).reshape(-1, P, P).copy()
+        if kw["lag_cross"].shape[0] != kw["lag_band"].size or kw["lags"] not in kw["lag_band"]:
+            raise ValueError("the stored lag band does not match its cross moments or the lag")
         return cls(**kw)
 
 
@@ -162,10 +181,19 @@ def bartlett_cross(W: np.ndarray, lags: int) -> np.ndarray:
     ``S_hac_simple``), by the same block-sum identity, with one matrix product for the k x k
     products (k is 11 here, too many for elementwise sums).
     """
+    return bartlett_cross_band(W, [lags])[0]
+
+
+def bartlett_cross_band(W: np.ndarray, lags: Any) -> np.ndarray:
+    """:func:`bartlett_cross` of ``W`` (n, k) for each lag of ``lags`` (B,): (B, k, k), one cumulative sum."""
     x = np.asarray(W, dtype=float)
-    n, L = x.shape[0], int(lags)
-    cs = np.zeros((n + 1, x.shape[1]))
+    cs = np.zeros((x.shape[0] + 1, x.shape[1]))
     np.cumsum(x, axis=0, out=cs[1:])
+    return np.stack([_bartlett_from_cumsum(cs, int(L)) for L in np.asarray(lags).reshape(-1)])
+
+
+def _bartlett_from_cumsum(cs: np.ndarray, L: int) -> np.ndarray:
+    n = cs.shape[0] - 1
     if L < n:
         blocks = np.concatenate([cs[1 : L + 1], cs[L + 1 :] - cs[: n - L], cs[n] - cs[n - L : n]])
     else:
@@ -278,6 +306,10 @@ def _keep(lags: int, window: int | None) -> int:
     return max(lags, (window - 1) if window else 0)
 
 
+def _lag_band(lags: int) -> np.ndarray:
+    return np.arange(max(lags - LAG_BAND, 0), lags + LAG_BAND + 1, dtype=np.int64)
+
+
 # ---------------------------------------------------------------- state
 
 def build_cell(rows: dict[str, Any], *, window: int | None = None,
@@ -310,11 +342,13 @@ def build_cell(rows: dict[str, Any], *, window: int | None = None,
     predicted = _sign(f - s)
     moved = predicted != 0
     band, below, above = _band_from(e)
+    lag_band = _lag_band(L)
+    lag_cross = bartlett_cross_band(W, lag_band)
     state = CellState(
         n=n, first_as_of=a[0], last_as_of=last, horizon=h, lags=L,
         premium_lags=min(L, window - 1) if window else -1, centre=centre, centre_s=centre_s, centre_v=centre_v,
         centre_e=centre_e, centre_d=centre_d,
-        sums=W.sum(axis=0), cross_moments=bartlett_cross(W, L),
+        sums=W.sum(axis=0), cross_moments=lag_cross[int(np.searchsorted(lag_band, L))].copy(),
         mean_e=mean_e, m2_e=m2_e, mean_v=mean_v, m2_v=m2_v,
         sum_e2=float(np.sum(e * e)), sum_u2=float(np.sum(r["rw_error_bp"] ** 2)), sum_v2=float(np.sum(v * v)),
         sum_abs_e=float(np.sum(np.abs(e))),
@@ -322,8 +356,9 @@ def build_cell(rows: dict[str, Any], *, window: int | None = None,
         min_s=float((f - s).min()), max_s=float((f - s).max()),
         n_moved=int(moved.sum()), n_hit=int((moved & (predicted == _sign(real - s))).sum()),
         hist_from=hist_from, hist=hist, band=band, band_below=below, band_above=above,
+        lag_band=lag_band, lag_cross=lag_cross,
     )
-    start = _tail_start(n, _keep(L, window), ~closed)
+    start = _tail_start(n, _keep(int(lag_band[-1]), window), ~closed)
     return state, _take(r, slice(start, n))
 
 
@@ -343,7 +378,9 @@ def append_cell(state: CellState, tail: dict[str, Any], new: dict[str, Any], *, 
     if a_new[0] <= state.last_as_of or (k > 1 and not (a_new[1:] > a_new[:-1]).all()):
         return None
     m0 = tl["error_bp"].size
-    if m0 < min(_keep(state.lags, window), state.n):
+    lag_band = state.lag_band
+    L_max = int(lag_band[-1])
+    if m0 < min(_keep(L_max, window), state.n):
         return None  # the tail is shorter than the update needs (an older state's layout)
     rows = {c: np.concatenate([tl[c], nw[c]]) for c in tl}
     n0, n1 = state.n, state.n + k
@@ -357,22 +394,25 @@ def append_cell(state: CellState, tail: dict[str, Any], new: dict[str, Any], *, 
     h = horizon_from_counts(hist, _open_counts(counts[open_mask], t[open_mask], state.first_as_of, last, n1),
                             hist_from)
     L = max(h - 1, 0)
-    if L != state.lags:
-        return None
+    at = int(np.searchsorted(lag_band, L))
+    if at >= lag_band.size or lag_band[at] != L:
+        return None  # outside the band: the recompute centres a new one
     premium_lags = min(L, window - 1) if window else -1
     if premium_lags != state.premium_lags:
         return None
 
-    # cross moments: each new row against itself and the L rows before it
-    z0 = max(m0 - min(L, n0), 0)
+    # cross moments of every lag b of the band: each new row against itself and the b rows before it
+    z0 = max(m0 - min(L_max, n0), 0)
     Z = _monomials(_take(rows, slice(z0, None)), state.centre, state.centre_s, state.centre_v, state.centre_e,
                    state.centre_d)
     Wn = Z[-k:]
     q = np.arange(Z.shape[0] - k, Z.shape[0])[:, None]
-    lag = q - np.arange(Z.shape[0])[None, :]
-    K = np.where((lag >= 1) & (lag <= L), 1.0 - lag / (L + 1.0), 0.0)
-    Vt = K @ Z
-    cross = state.cross_moments + Wn.T @ Wn + Wn.T @ Vt + Vt.T @ Wn
+    lag = (q - np.arange(Z.shape[0])[None, :])[None, :, :]
+    b = lag_band[:, None, None].astype(float)
+    K = np.where((lag >= 1) & (lag <= b), 1.0 - lag / (b + 1.0), 0.0)  # (B, k, rows of Z)
+    Vt = K @ Z  # (B, k, P)
+    WV = Wn.T @ Vt  # (B, P, P)
+    lag_cross = state.lag_cross + (Wn.T @ Wn)[None] + WV + WV.transpose(0, 2, 1)
 
     e, f, s, real = nw["error_bp"], nw["forward_rate"], nw["spot_rate"], nw["realized_rate"]
     v = Wn[:, _V]
@@ -396,7 +436,8 @@ def append_cell(state: CellState, tail: dict[str, Any], new: dict[str, Any], *, 
     band = band[keep_lo : keep_hi + 1].copy()
 
     out = replace(
-        state, n=n1, last_as_of=last, horizon=h, sums=state.sums + Wn.sum(axis=0), cross_moments=cross,
+        state, n=n1, last_as_of=last, horizon=h, lags=L, sums=state.sums + Wn.sum(axis=0),
+        cross_moments=lag_cross[at].copy(), lag_cross=lag_cross,
         mean_e=mean_e, m2_e=m2_e, mean_v=mean_v, m2_v=m2_v,
         sum_e2=state.sum_e2 + float(np.sum(e * e)), sum_u2=state.sum_u2 + float(np.sum(nw["rw_error_bp"] ** 2)),
         sum_v2=state.sum_v2 + float(np.sum(v * v)), sum_abs_e=state.sum_abs_e + float(np.sum(np.abs(e))),
@@ -408,7 +449,7 @@ def append_cell(state: CellState, tail: dict[str, Any], new: dict[str, Any], *, 
         hist_from=hist_from, hist=hist, band=band, band_below=below, band_above=above,
     )
     m1 = m0 + k
-    start = _tail_start(m1, _keep(L, window), open_mask)
+    start = _tail_start(m1, _keep(L_max, window), open_mask)
     return out, _take(rows, slice(start, m1))
 
 

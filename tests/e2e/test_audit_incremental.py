@@ -7,8 +7,9 @@ refresh the stored ``audit_result`` and ``term_premium_result`` rows are compare
 :func:`pipeline.audit.summarize` and :func:`pipeline.audit.term_premium` over the curve's current
 outcomes as the store holds them (1e-9 relative). The sequence covers plain days, a regime change
 (the curve inverts), a gap past the realisation tolerance followed by the late file of a day inside
-it (outcomes realised out of order: their cells are recomputed), and a restatement of a realised day
-(outcomes superseded: the whole curve is recomputed).
+it (outcomes realised out of order: their cells are recomputed), a restatement of a realised day
+(outcomes superseded: the whole curve is recomputed), and a state stored in an older layout (without
+the lag band of sql/008, or of another state format: the whole curve is recomputed).
 """
 
 from __future__ import annotations
@@ -154,6 +155,9 @@ def test_days_one_at_a_time_match_a_full_recompute(project):
         done = _day(p, days, rates, i)
         modes.append(done.mode)
         assert done.new_outcomes > 0
+        # no cell recomputed: on the fourth day the 1M-start cells' Newey-West lag moves by one,
+        # which the stored lag band absorbs (without the band those two cells were recomputed)
+        assert done.recomputed == [], done
         _assert_same(p.cfg)
     assert modes == ["incremental"] * 4
     # nothing new: nothing changes
@@ -210,4 +214,28 @@ def test_a_windowed_audit_drops_the_state_and_the_next_refresh_is_full(project, 
         assert con.execute("SELECT count(*) FROM audit_result WHERE window_from IS NOT NULL").fetchall()[0][0] > 0
     done = refresh_audit_incremental(q.cfg)["zc"]
     assert done.mode == "full" and done.reason == "no stored state"
+    _assert_same(q.cfg)
+
+
+@pytest.mark.parametrize("older", ["UPDATE audit_state_cell SET lag_band = NULL, lag_cross = NULL",
+                                   "UPDATE audit_state_curve SET state_format = state_format - 1"],
+                         ids=["no-lag-band", "older-format"])
+def test_a_state_in_an_older_layout_is_rebuilt_in_full(project, tmp_path, older):
+    """Cell rows stored before sql/008 (NULL lag band) or a state of an older format: the next refresh
+    recomputes the curve, stores the band, and the refresh after it is incremental again."""
+    from tests.e2e.stores import clone_project
+    from warehouse.connect import writer
+
+    p, days, rates, first = project
+    q = clone_project(p, tmp_path / "older", TOML)
+    with writer(q.cfg.store_path) as con:
+        con.execute(older)
+    done = refresh_audit_incremental(q.cfg)["zc"]
+    assert done.mode == "full" and ("older layout" in done.reason or "format" in done.reason), done
+    _assert_same(q.cfg)
+    with reader(q.cfg.store_path) as con:
+        assert con.execute("SELECT count(*) FROM audit_state_cell WHERE lag_band IS NULL OR lag_cross IS NULL "
+                           "OR len(lag_cross) != 121 * len(lag_band)").fetchall()[0][0] == 0
+    done = _day(q, days, rates, first + 11)
+    assert done.mode == "incremental"
     _assert_same(q.cfg)

@@ -394,9 +394,11 @@ def test_as_days_round_trip_of_outputs():
 # against statsmodels above), and statsmodels directly where named.
 from pipeline.audit_state import (  # noqa: E402
     BAND,
+    LAG_BAND,
     TAIL_COLUMNS,
     append_cell,
     bartlett_cross,
+    bartlett_cross_band,
     build_cell,
     cell_summary,
     premium_increment,
@@ -527,3 +529,82 @@ def test_median_band_gives_up_when_the_median_leaves_it():
         errors.append(high["error_bp"].iloc[i])
         assert cell_summary(state)["median_error_bp"] == np.median(errors)
     assert res is None and BAND <= i <= 2 * BAND + 2  # the rank moves half a place a row
+
+
+def _daily_dates(o: pd.DataFrame, offsets: np.ndarray) -> pd.DataFrame:
+    """``o`` on consecutive calendar days, each target ``offsets[i]`` days after its as-of date: the
+    overlap count of row i is exactly offsets[i] (the average spacing is one day, so a target past
+    the sample is counted as if the days went on)."""
+    o = o.copy()
+    a = np.datetime64("2031-01-01") + np.arange(len(o))
+    o["as_of"] = a
+    o["target_date"] = a + np.asarray(offsets, dtype=np.int64)
+    return o
+
+
+def test_bartlett_cross_band_equals_statsmodels():
+    rng = np.random.default_rng(3)
+    W = rng.normal(size=(400, 11)) + np.cumsum(rng.normal(size=(400, 11)), axis=0) * 0.05
+    got = bartlett_cross_band(W, [0, 1, 7, 399, 500])
+    for i, lags in enumerate((0, 1, 7, 399, 500)):
+        np.testing.assert_allclose(got[i], S_hac_simple(W, nlags=lags), rtol=1e-10)  # statsmodels
+
+
+@pytest.mark.parametrize("window", [None, 8], ids=["regime-cell", "premium-cell"])
+def test_lag_flipping_every_day_needs_no_recompute(window):
+    """Counts alternating 20, 21, 20, ...: the median is 21 on an even-sized record (20.5 rounded up)
+    and 20 on an odd-sized one, so h and the Newey-West lag flip with every appended row. Each
+    append stays incremental and equals summarize over the record so far (premium: term_premium)."""
+    n, first = 450, 250
+    o = _daily_dates(make_outcomes(n, 21, 25.0, seed=11), 20 + np.arange(n) % 2)
+    state, tail = build_cell(_cell_rows(o.iloc[:first]), window=window)
+    assert list(state.lag_band) == list(range(state.lags - LAG_BAND, state.lags + LAG_BAND + 1))
+    lags, pieces = set(), []
+    for i in range(first, n):
+        new = _cell_rows(o.iloc[i : i + 1])
+        res = append_cell(state, tail, new, window=window)
+        assert res is not None, i
+        if window:
+            pieces.append(premium_increment(tail, new, window, res[0].premium_lags))
+        state, tail = res
+        got = cell_summary(state)
+        ref = row_of(summarize(o.iloc[: i + 1]))  # the whole record's figures (checked against statsmodels above)
+        _assert_row_equal(got, ref)
+        lags.add(got["lags"])
+        # the tail holds what the band's largest lag needs, the cells' state stays O(h)
+        assert tail["as_of"].size >= min(int(state.lag_band[-1]), state.n)
+    assert lags == {19, 20}  # the lag did flip
+    if window:
+        ref = term_premium(o, window).set_index("as_of")
+        r = ref.loc[pd.DatetimeIndex(np.concatenate([p["as_of"] for p in pieces]))]
+        np.testing.assert_allclose(np.concatenate([p["premium_bp"] for p in pieces]), r["premium_bp"],
+                                   rtol=STATE_RTOL)
+        se = np.concatenate([p["se_bp"] for p in pieces])
+        np.testing.assert_allclose(se * 1.959963984540054, r["upper_bp"] - r["premium_bp"], rtol=STATE_RTOL)
+
+
+def test_lag_leaving_the_band_means_a_recompute():
+    """200 rows with count 20 (lag 19, band 17..21), then rows with count 23: the median moves to
+    21.5 (lag 21, inside the band, still incremental and exact) and then to 23 (lag 22, outside:
+    None). A rebuild centres the band on the new lag and goes on incrementally."""
+    n0 = 200
+    o = _daily_dates(make_outcomes(n0 + 300, 21, -10.0, seed=12), np.where(np.arange(n0 + 300) < n0, 20, 23))
+    state, tail = build_cell(_cell_rows(o.iloc[:n0]))
+    assert state.lags == 19 and list(state.lag_band) == [17, 18, 19, 20, 21]
+    seen = set()
+    for i in range(n0, n0 + 300):
+        res = append_cell(state, tail, _cell_rows(o.iloc[i : i + 1]))
+        if res is None:
+            break
+        state, tail = res
+        if state.lags not in seen or i % 20 == 0:  # each new lag, and now and then
+            _assert_row_equal(cell_summary(state), row_of(summarize(o.iloc[: i + 1])))
+        seen.add(state.lags)
+    assert res is None and 21 in seen
+    # the record up to the refused row has the lag 22, outside the band (summarize: overlap_horizon)
+    assert overlap_horizon(o["as_of"][: i + 1], o["target_date"][: i + 1]) - 1 == 22
+    state, tail = build_cell(_cell_rows(o.iloc[: i + 1]))
+    assert list(state.lag_band) == [20, 21, 22, 23, 24]
+    res = append_cell(state, tail, _cell_rows(o.iloc[i + 1 : i + 2]))
+    assert res is not None
+    _assert_row_equal(cell_summary(res[0]), row_of(summarize(o.iloc[: i + 2])))
