@@ -243,6 +243,10 @@ def cli_backfill(config_path: Path, first: str | None, last: str | None, workers
     console.print(f"{startup.describe()}{local}; the job's own work {summary.work_seconds:.2f} s "
                   f"(Prefect run overhead {max(flow_seconds - summary.work_seconds, 0):.1f} s; "
                   f"total {time.perf_counter() - total:.1f} s)")
+    stages = ", ".join(f"{k} {v:.2f}" for k, v in summary.seconds.items())
+    compute = sum(c.get("compute_seconds", 0.0) for c in summary.curves.values())
+    write = sum(c.get("write_seconds", 0.0) for c in summary.curves.values())
+    console.print(f"stages (s): {stages}; chunks computed in {compute:.2f} s of task time, written in {write:.2f} s")
     return 1 if any(c.get("failed") for c in summary.curves.values()) else 0
 
 
