@@ -365,8 +365,11 @@ def _summary_rows(name: str, states: dict[tuple, tuple[CellState, dict]]) -> pd.
 def _refresh_curve(con, cfg: Config, name: str, now) -> AuditRefresh:  # noqa: ANN001, C901
     c = cfg.curve(name)
     w = c.premium_window_days
+    # the last column counts cell rows stored without the lag band (before sql/008)
     meta = fetch_one(con, "SELECT state_format, window_days, inversion_pair, seen_realized_at, seen_superseded_at, "
-                          "n_current, data_version FROM audit_state_curve WHERE curve = ?", [name])
+                          "n_current, data_version, (SELECT count(*) FROM audit_state_cell s WHERE s.curve = ? AND "
+                          "(s.lag_band IS NULL OR s.lag_cross IS NULL OR len(s.lag_band) = 0)) "
+                          "FROM audit_state_curve WHERE curve = ?", [name, name])
     seen = _seen(con, name)
 
     def full(reason: str) -> AuditRefresh:
@@ -377,12 +380,10 @@ def _refresh_curve(con, cfg: Config, name: str, now) -> AuditRefresh:  # noqa: A
         return AuditRefresh(name, "unchanged", pd.DataFrame(), "no outcomes")
     if meta is None:
         return full("no stored state")
-    fmt, window_days, pair, seen_realized, seen_superseded, n_current, data_version = meta
+    fmt, window_days, pair, seen_realized, seen_superseded, n_current, data_version, older = meta
     if fmt != STATE_FORMAT or window_days != w or pair != _inversion_label(c):
         return full("state built for another format, premium window or inversion pair")
-    older = fetch_one(con, "SELECT count(*) FROM audit_state_cell WHERE curve = ? AND (lag_band IS NULL OR "
-                           "lag_cross IS NULL OR len(lag_band) = 0)", [name])
-    if older and older[0]:
+    if older:
         return full("state stored in an older layout (without the lag band)")
     if seen[1] is not None and (seen_superseded is None or seen[1] > seen_superseded):
         return full("outcomes superseded since the state was stored")
