@@ -339,11 +339,27 @@ def backfill(config_path: str, first: str | None = None, last: str | None = None
 # --- task runners -------------------------------------------------------------------------------
 
 def _warm_up() -> None:
-    """Import the chunk computation's modules on a worker before the first chunk arrives."""
-    import flows.backfill  # noqa: F401
-    import pipeline.checks  # noqa: F401
-    import pipeline.curves  # noqa: F401
-    import pipeline.forwards  # noqa: F401
+    """Get a worker ready before the first chunk arrives (while the cluster starts, not in the job's
+    time): import the chunk computation's modules and Prefect's task engine, which runs each task
+    there, and build one small chunk so that the libraries' first-call costs are paid too."""
+    import prefect.task_engine  # noqa: F401
+    import prefect_dask  # noqa: F401
+
+    from flows import build_step
+    from pipeline.config import CurveConfig
+    from pipeline.tenors import parse_tenor
+
+    def tenors(*labels: str) -> tuple:
+        return tuple(parse_tenor(x) for x in labels)
+
+    days = np.arange(np.datetime64("2001-01-01"), np.datetime64("2001-01-11"))
+    for kind, compounding in (("zero", "continuous"), ("par", "semiannual")):
+        for method in ("linear_zero", "monotone_convex"):
+            c = CurveConfig("warm-up", quote=kind, compounding=compounding, interpolation=method,
+                            tenors=tenors("3M", "1Y", "2Y", "5Y", "10Y"), forward_starts=tenors("3M", "1Y"),
+                            forward_tenors=tenors("3M", "1Y"))
+            build_step.compute_days(days, list(c.tenor_labels), np.full((days.size, len(c.tenors)), 0.03), c,
+                                    method)
 
 
 # Dask's nanny sets MALLOC_TRIM_THRESHOLD_=65536 in its workers by default; with it, glibc hands
