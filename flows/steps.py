@@ -141,9 +141,11 @@ def load_files(cfg: Config, paths: Iterable[Path], curve: str | None = None,
     and validates the next chunks while this one records; the outcome is the same either way.
     """
     files = list(paths)
-    chunks = [files[i:i + chunk] for i in range(0, len(files), chunk)]
     if read_ahead is None:
         read_ahead = len(files) >= READ_AHEAD_MIN_FILES
+    # reading ahead, the first chunk is read here before anything can be recorded: keep it short
+    first = min(chunk, 24) if read_ahead else chunk
+    chunks = [files[:first]] + [files[i:i + chunk] for i in range(first, len(files), chunk)] if files else []
     outcomes: list[LoadOutcome] = []
     ahead = _reader_process() if read_ahead and len(chunks) > 1 else None
     try:
