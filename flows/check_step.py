@@ -14,7 +14,7 @@ from dataclasses import dataclass, field
 import numpy as np
 import pandas as pd
 
-from pipeline.checks import curve_checks, inversion_episodes
+from pipeline.checks import curve_checks, inversion_episodes, pairs_inverted_first
 from pipeline.config import Config
 from warehouse.connect import writer
 from warehouse.frames import read_quote_panel
@@ -147,15 +147,10 @@ def _episodes_from(con, curve: str, panel, c) -> np.datetime64:  # noqa: ANN001
     """
     start = panel.as_of[0]
     out = start
-    for short, long in c.inversion_pairs:
-        i, j = panel.tenors.index(short.label), panel.tenors.index(long.label)
-        spread = panel.rates[:, j] - panel.rates[:, i]
-        judged = np.flatnonzero(~np.isnan(spread))
-        if judged.size == 0 or spread[judged[0]] >= 0:
-            continue
+    for short, long in pairs_inverted_first(panel.as_of, panel.tenors, panel.rates, c):
         began = fetch_value(con, "SELECT max(first_day) FROM inversion_episode WHERE curve = ? AND short_tenor = ? "
                                  "AND long_tenor = ? AND first_day < CAST(? AS DATE)",
-                            [curve, short.label, long.label, str(start)])
+                            [curve, short, long, str(start)])
         if began is not None:
             out = min(out, np.datetime64(began, "D"))
     return out

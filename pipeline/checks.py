@@ -43,6 +43,7 @@ __all__ = [
     "empty_findings",
     "inversion_episodes",
     "inversions",
+    "pairs_inverted_first",
     "jumps",
     "missing_days",
     "missing_tenors",
@@ -433,6 +434,21 @@ def _pair_spreads(
             cs, cl = c[:, col[s]], c[:, col[lg]]
             pairs.append((s, lg, cs, cl, cl - cs))
     return days, pairs
+
+
+def pairs_inverted_first(as_of: Any, tenors: Sequence[str], rates: Any, cfg: CurveConfig) -> list[tuple[str, str]]:
+    """The inversion pairs (short, long labels) whose first judged day in the panel is inverted.
+
+    Judged and inverted as :func:`inversion_episodes` judges them, so a caller that reads only a
+    suffix of the history knows which pairs' runs may have begun before its first day.
+    """
+    _, pairs = _pair_spreads(as_of, tenors, rates, cfg)
+    out = []
+    for s, lg, _, _, spread in pairs:
+        judged = np.flatnonzero(~np.isnan(spread))
+        if judged.size and spread[judged[0]] < 0:
+            out.append((s, lg))
+    return out
 
 
 def inversions(as_of: Any, tenors: Sequence[str], rates: Any, cfg: CurveConfig) -> pd.DataFrame:

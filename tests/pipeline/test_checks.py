@@ -476,3 +476,18 @@ def test_severity_is_taken_from_config_per_check():
     out = checks.curve_checks(days, LABELS, r, make_cfg(severity=sev))
     by = out.groupby("check_name")["severity"].agg(set)
     assert by["jump"] <= {"warn", "info"} and "warn" in by["jump"]
+
+
+def test_pairs_inverted_on_their_first_judged_day():
+    # hand-made panel (reference: the rule in the docstring): 3M/10Y is not judged on day 0 (10Y missing) and
+    # inverted on day 1, its first judged day; 2Y/10Y is judged on day 1 first and not inverted there
+    days = np.array(["2031-01-02", "2031-01-03", "2031-01-06"], dtype="datetime64[D]")
+    rates = np.full((3, len(LABELS)), 0.04)
+    i3m, i2y, i10y = LABELS.index("3M"), LABELS.index("2Y"), LABELS.index("10Y")
+    rates[0, i10y] = np.nan
+    rates[1, i3m], rates[1, i2y], rates[1, i10y] = 0.05, 0.035, 0.045
+    rates[2, i10y] = 0.03                                        # later inversions do not matter
+    cfg = make_cfg()
+    assert checks.pairs_inverted_first(days, LABELS, rates, cfg) == [("3M", "10Y")]
+    # the same days seen from the last day only: both pairs inverted there
+    assert checks.pairs_inverted_first(days[2:], LABELS, rates[2:], cfg) == [("3M", "10Y"), ("2Y", "10Y")]
