@@ -17,18 +17,13 @@ from collections.abc import Callable, Iterable, Sequence
 from concurrent.futures import ProcessPoolExecutor
 from pathlib import Path
 
-import pandas as pd
-
 from pipeline.config import Config
 from pipeline.intake import load_findings, prepare_many, route_curve, validate_intakes
 from pipeline.readers import ReadLimits, ReadResult, read_rate_file
-from warehouse.connect import writer
-from warehouse.loads import FileBatch, Loader, LoadOutcome
+from warehouse.connect import one_thread, writer
+from warehouse.loads import FileBatch, Loader, LoadOutcome, file_batch
 
 __all__ = ["UserError", "load_files", "prepare_files"]
-
-_NO_ROWS = pd.DataFrame()
-
 
 class UserError(RuntimeError):
     """A mistake in what the user asked for; the message is one line."""
@@ -102,10 +97,10 @@ def prepare_files(paths: Sequence[Path], cfg: Config, curve: str | None = None
         base, _result, error = s
         intake = by_id.get(id(s))
         if intake is None:
-            out.append(FileBatch(rows=_NO_ROWS, rejected=_NO_ROWS, error=error, **base))
+            out.append(file_batch(error=error, **base))
         else:
-            out.append(FileBatch(rows=intake.rows, rejected=intake.rejected, validations=intake.validations,
-                                 findings=load_findings(intake, cfg), **base))
+            out.append(file_batch(rows=intake.rows, rejected=intake.rejected, validations=intake.validations,
+                                  findings=load_findings(intake, cfg), **base))
     return out
 
 
@@ -155,7 +150,7 @@ def load_files(cfg: Config, paths: Iterable[Path], curve: str | None = None,
             parts: Iterable = itertools.chain([prepare_files(chunks[0], cfg, curve)], (f.result() for f in later))
         else:
             parts = (prepare_files(c, cfg, curve) for c in chunks)
-        with writer(cfg.store_path) as con:
+        with writer(cfg.store_path) as con, one_thread(con):
             loader = Loader(con)
             for items in parts:
                 loader.prefetch([i for i in items if isinstance(i, FileBatch)])

@@ -12,8 +12,9 @@ one process can hold the store's write lock.
 
 from __future__ import annotations
 
+import itertools
 import json
-from dataclasses import dataclass, field
+from dataclasses import dataclass
 from datetime import UTC, datetime
 
 import duckdb
@@ -23,7 +24,7 @@ import pyarrow as pa
 
 from warehouse.query import fetch_one
 
-__all__ = ["FileBatch", "LoadOutcome", "Loader", "utc_now"]
+__all__ = ["FileBatch", "LoadOutcome", "Loader", "file_batch", "utc_now"]
 
 # equal rates within this are the same quote re-sent, not a restatement (decimals)
 RATE_EPS = 1e-12
@@ -34,12 +35,26 @@ def utc_now() -> datetime:
     return datetime.now(UTC).replace(tzinfo=None)
 
 
+def _date32(values: pd.Series | np.ndarray) -> pa.Array:
+    return pa.array(np.asarray(values, dtype="datetime64[D]"), type=pa.date32())
+
+
+def _str(values: pd.Series) -> pa.Array:
+    return pa.array(values.tolist(), type=pa.string())
+
+
 @dataclass
 class FileBatch:
-    """One file, read and validated, ready to record.
+    """One file, read and validated, in the store's layout: ready to record.
 
-    ``rows``: curve, as_of (date), tenor, maturity_date (date), rate (decimal), line.
-    ``rejected``: line, raw, reason, check_name. ``error`` set means the file was refused whole.
+    Built by :func:`file_batch` where the file was read (possibly another process), so the one
+    writer only classifies keys and runs its statements.
+
+    ``quotes``: Arrow table of curve, as_of (date32), tenor, maturity_date (date32), rate (decimal),
+    source_file, line (int32), sorted by (curve, as_of, tenor). ``days`` (int64 days since
+    1970-01-01) and ``tenors`` hold the same rows' keys; ``curve_spans`` the (curve, start, stop) row
+    ranges of each curve. ``rejected``: line, raw, reason, check_name. ``findings``: curve, as_of,
+    check_name, severity, tenor, detail. ``error`` set means the file was refused whole.
     """
 
     source_file: str
@@ -48,11 +63,74 @@ class FileBatch:
     size_bytes: int
     curve: str | None
     layout: str | None
-    rows: pd.DataFrame
-    rejected: pd.DataFrame
+    quotes: pa.Table
+    days: np.ndarray
+    tenors: list[str]
+    curve_spans: tuple[tuple[str, int, int], ...] = ()
+    rejected: pa.Table | None = None
+    findings: pa.Table | None = None
     error: str | None = None
-    validations: list[dict] = field(default_factory=list)
-    findings: pd.DataFrame | None = None     # curve, as_of, check_name, severity, tenor, detail
+    validation_json: str | None = None
+    first_day: object = None
+    last_day: object = None
+
+    @property
+    def rows_accepted(self) -> int:
+        return self.quotes.num_rows
+
+    @property
+    def rows_rejected(self) -> int:
+        return 0 if self.rejected is None else self.rejected.num_rows
+
+
+_QUOTE_SCHEMA = pa.schema([("curve", pa.string()), ("as_of", pa.date32()), ("tenor", pa.string()),
+                           ("maturity_date", pa.date32()), ("rate", pa.float64()), ("source_file", pa.string()),
+                           ("line", pa.int32())])
+
+
+def file_batch(*, source_file: str, file_name: str, sha256: str, size_bytes: int, curve: str | None,
+               layout: str | None, rows: pd.DataFrame | None = None, rejected: pd.DataFrame | None = None,
+               findings: pd.DataFrame | None = None, validations: list[dict] | None = None,
+               error: str | None = None) -> FileBatch:
+    """A :class:`FileBatch` from the frames of intake (no store access).
+
+    ``rows``: curve, as_of, tenor, maturity_date, rate (decimal), line; ``rejected``: line, raw,
+    reason, check_name; ``findings`` as :class:`FileBatch`. A refused file (``error``) keeps no rows.
+    """
+    lineage = dict(source_file=source_file, file_name=file_name, sha256=sha256, size_bytes=size_bytes,
+                   curve=curve, layout=layout)
+    if error is not None or rows is None or not len(rows):
+        quotes, days, tenors, spans, first, last = _QUOTE_SCHEMA.empty_table(), np.zeros(0, np.int64), [], (), \
+            None, None
+    else:
+        day = rows["as_of"].to_numpy(dtype="datetime64[D]")
+        quotes = pa.table({
+            "curve": _str(rows["curve"]), "as_of": pa.array(day, type=pa.date32()), "tenor": _str(rows["tenor"]),
+            "maturity_date": _date32(rows["maturity_date"]), "rate": pa.array(rows["rate"].to_numpy(dtype=float)),
+            "source_file": pa.repeat(pa.scalar(source_file, type=pa.string()), len(rows)),
+            "line": pa.array(rows["line"].to_numpy(dtype=np.int32)),
+        }, schema=_QUOTE_SCHEMA).sort_by([("curve", "ascending"), ("as_of", "ascending"), ("tenor", "ascending")])
+        days = quotes.column("as_of").cast(pa.int32()).to_numpy().astype(np.int64)
+        tenors = quotes.column("tenor").to_pylist()
+        names = quotes.column("curve").to_pylist()
+        cuts = [0] + [i for i in range(1, len(names)) if names[i] != names[i - 1]] + [len(names)]
+        spans = tuple((str(names[a]), a, z) for a, z in itertools.pairwise(cuts))
+        first, last = rows["as_of"].min(), rows["as_of"].max()
+    rj = None
+    if error is None and rejected is not None and len(rejected):
+        rj = pa.table({"line": pa.array(rejected["line"].to_numpy(dtype=np.int32)), "raw": _str(rejected["raw"]),
+                       "reason": _str(rejected["reason"]), "check_name": _str(rejected["check_name"])})
+    raised = None
+    if error is None and findings is not None and len(findings):
+        raised = pa.table({
+            "curve": _str(findings["curve"]), "as_of": _date32(findings["as_of"]),
+            "check_name": _str(findings["check_name"]), "severity": _str(findings["severity"]),
+            "tenor": _str(findings["tenor"]), "detail": _str(findings["detail"]),
+        })
+    return FileBatch(**lineage, quotes=quotes, days=days, tenors=tenors, curve_spans=spans, rejected=rj,
+                     findings=raised, error=error,
+                     validation_json=json.dumps(validations, default=str) if validations else None,
+                     first_day=first, last_day=last)
 
 
 @dataclass
@@ -70,14 +148,6 @@ class LoadOutcome:
     curves: tuple[str, ...] = ()
     first_day: object = None
     last_day: object = None
-
-
-def _date32(values: pd.Series | np.ndarray) -> pa.Array:
-    return pa.array(np.asarray(values, dtype="datetime64[D]"), type=pa.date32())
-
-
-def _str(values: pd.Series) -> pa.Array:
-    return pa.array(values.tolist(), type=pa.string())
 
 
 class Loader:
@@ -141,47 +211,25 @@ class Loader:
         """Read, in one query per curve, the current quotes every batch's rows may revise."""
         spans: dict[str, tuple[int, int]] = {}
         for b in batches:
-            if not isinstance(b, FileBatch) or b.error is not None or not len(b.rows):
-                continue
-            names, days, _ = self._row_keys(b.rows, keys=False)
-            for curve, idx in self._by_curve(names).items():
-                part = days[idx]
+            for curve, a, z in b.curve_spans:
+                part = b.days[a:z]
                 lo, hi = int(part.min()), int(part.max())
-                old = spans.get(str(curve))
-                spans[str(curve)] = (lo, hi) if old is None else (min(lo, old[0]), max(hi, old[1]))
+                old = spans.get(curve)
+                spans[curve] = (lo, hi) if old is None else (min(lo, old[0]), max(hi, old[1]))
         for curve, (lo, hi) in spans.items():
             self._curve_state(curve, lo, hi)
 
-    @staticmethod
-    def _by_curve(names: np.ndarray) -> dict[object, np.ndarray]:
-        if (names == names[0]).all():  # the usual case: a file of one curve
-            return {names[0]: slice(None)}  # type: ignore[dict-item]
-        return pd.Series(names).groupby(names, sort=False).indices
-
-    def _row_keys(self, rows: pd.DataFrame, keys: bool = True) -> tuple[np.ndarray, np.ndarray, list[int]]:
-        names = rows["curve"].to_numpy(dtype=object)
-        days = rows["as_of"].to_numpy(dtype="datetime64[D]").view(np.int64)
-        return names, days, self._encode(days, rows["tenor"].tolist()) if keys else []
-
-    def _classify(self, names: np.ndarray, days: np.ndarray, keys: list[int]) -> np.ndarray:
+    def _classify(self, batch: FileBatch, keys: list[int]) -> np.ndarray:
         """Each row's previous current rate (NaN where the key is new)."""
         old = np.full(len(keys), np.nan)
         nan = float("nan")
-        for curve, idx in self._by_curve(names).items():
-            part_days = days[idx]
-            state = self._curve_state(str(curve), int(part_days.min()), int(part_days.max()))
+        for curve, a, z in batch.curve_spans:
+            # rows are sorted by (curve, as_of): a span's first and last rows hold its day range
+            state = self._curve_state(curve, int(batch.days[a]), int(batch.days[z - 1]))
             if state:
-                part = keys if isinstance(idx, slice) else [keys[i] for i in idx]
-                old[idx] = [state.get(k, nan) for k in part]
+                get = state.get
+                old[a:z] = [get(k, nan) for k in keys[a:z]]
         return old
-
-    def _remember(self, names: np.ndarray, keys: list[int], rates: np.ndarray, write: np.ndarray) -> None:
-        for curve, idx in self._by_curve(names).items():
-            sel = np.zeros(len(keys), dtype=bool)
-            sel[idx] = True
-            sel &= write
-            state = self._current[str(curve)]  # read by _classify before the write
-            state.update(zip((k for k, w in zip(keys, sel, strict=True) if w), rates[sel].tolist(), strict=True))
 
     def record(self, batch: FileBatch) -> LoadOutcome:
         """Record one file in a single transaction. Safe to rerun: a repeat is "already loaded"."""
@@ -192,20 +240,17 @@ class Loader:
             return LoadOutcome(batch.source_file, "already loaded", prior, detail=f"same content as load {prior}")
         started = utc_now()
         status = "refused" if batch.error is not None else "loaded"
-        rows = batch.rows
-        n_rej = 0 if batch.error is not None else len(batch.rejected)
-        if len(rows):
-            names, days, keys = self._row_keys(rows)
-            old = self._classify(names, days, keys)
-            rates = rows["rate"].to_numpy(dtype=float)
-            curves = tuple(sorted({str(c) for c in set(names.tolist())}))
-        else:
-            names, days, keys, old, rates, curves = np.array([], dtype=object), np.array([], dtype=np.int64), [], \
-                np.array([]), np.array([]), ()
+        quotes = batch.quotes
+        n_rows, n_rej = quotes.num_rows, batch.rows_rejected
+        keys = self._encode(batch.days, batch.tenors) if n_rows else []
+        old = self._classify(batch, keys) if n_rows else np.zeros(0)
+        rates = quotes.column("rate").to_numpy()
         is_new = np.isnan(old)
         changed = ~is_new & (np.abs(old - rates) > RATE_EPS)
+        write = is_new | changed
         new, revised = int(is_new.sum()), int(changed.sum())
-        unchanged = len(rows) - new - revised
+        every = new + revised == n_rows
+        curves = tuple(sorted({c for c, _, _ in batch.curve_spans}))
 
         con.execute("BEGIN TRANSACTION")
         try:
@@ -213,61 +258,32 @@ class Loader:
             if batch.error is not None:
                 con.execute("INSERT INTO rejected_row VALUES (?, ?, 0, NULL, ?, 'unreadable')",
                             [load_id, batch.source_file, batch.error])
-            write = is_new | changed
+            # DuckDB reads each local Arrow table below by its name (a replacement scan, no catalog change)
             if revised:
-                sup = rows.loc[changed]
-                stamp = pa.table({"curve": _str(sup["curve"]), "as_of": _date32(sup["as_of"]),
-                                  "tenor": _str(sup["tenor"])})
-                con.register("_restated", stamp)
+                restated = quotes.filter(pa.array(changed)).select(["curve", "as_of", "tenor"])  # noqa: F841
                 con.execute(
-                    "UPDATE quote_version AS q SET superseded_at = ? FROM _restated r "
+                    "UPDATE quote_version AS q SET superseded_at = ? FROM restated r "
                     "WHERE q.curve = r.curve AND q.as_of = r.as_of AND q.tenor = r.tenor AND q.superseded_at IS NULL",
                     [started],
                 )
-                con.unregister("_restated")
-            if write.any():
-                every = bool(write.all())
-                w = rows if every else rows.loc[write]
-                n = len(w)
-                one_curve = curves and len(curves) == 1
-                incoming = pa.table({
-                    "curve": pa.repeat(pa.scalar(curves[0], type=pa.string()), n) if one_curve else _str(w["curve"]),
-                    "as_of": pa.array(days if every else days[write], type=pa.int32()).cast(pa.date32()),
-                    "tenor": _str(w["tenor"]),
-                    "maturity_date": _date32(w["maturity_date"]), "rate": pa.array(rates if every else rates[write]),
-                    "recorded_at": pa.repeat(pa.scalar(started, type=pa.timestamp("us")), n),
-                    "superseded_at": pa.nulls(n, type=pa.timestamp("us")),
-                    "load_id": pa.repeat(pa.scalar(load_id, type=pa.int64()), n),
-                    "source_file": pa.repeat(pa.scalar(batch.source_file, type=pa.string()), n),
-                    "line": pa.array(w["line"].to_numpy(dtype=np.int32)),
-                }).sort_by([("curve", "ascending"), ("as_of", "ascending"), ("tenor", "ascending")])
-                # DuckDB reads the local Arrow table by its name (a replacement scan, no catalog change)
-                con.execute("INSERT INTO quote_version SELECT * FROM incoming")
-                del incoming
+            if new or revised:
+                incoming = quotes if every else quotes.filter(pa.array(write))  # noqa: F841
+                con.execute("INSERT INTO quote_version SELECT curve, as_of, tenor, maturity_date, rate, ?, NULL, ?, "
+                            "source_file, line FROM incoming", [started, load_id])
             if n_rej:
-                rj = batch.rejected
-                con.register("_rejected", pa.table({
-                    "line": pa.array(rj["line"].to_numpy(dtype=np.int32)), "raw": _str(rj["raw"]),
-                    "reason": _str(rj["reason"]), "check_name": _str(rj["check_name"]),
-                }))
-                con.execute("INSERT INTO rejected_row SELECT ?, ?, line, raw, reason, check_name FROM _rejected",
+                rejected = batch.rejected  # noqa: F841
+                con.execute("INSERT INTO rejected_row SELECT ?, ?, line, raw, reason, check_name FROM rejected",
                             [load_id, batch.source_file])
-                con.unregister("_rejected")
-            if batch.findings is not None and len(batch.findings):
-                f = batch.findings
-                raised = pa.table({  # noqa: F841 - read by DuckDB by its name
-                    "curve": _str(f["curve"]), "as_of": _date32(f["as_of"]), "check_name": _str(f["check_name"]),
-                    "severity": _str(f["severity"]), "tenor": _str(f["tenor"]), "detail": _str(f["detail"]),
-                })
+            if batch.findings is not None:
+                raised = batch.findings  # noqa: F841
                 con.execute("INSERT INTO finding SELECT curve, as_of, check_name, severity, tenor, detail, ?, ?, "
                             "NULL, NULL FROM raised", [started, load_id])
             # the log row goes in last, so its finished_at is the moment just before the commit
             con.execute(
                 "INSERT INTO load_log VALUES (?, ?, ?, ?, ?, ?, ?, ?, ?, ?, ?, ?, ?, ?, ?, ?, ?)",
                 [load_id, batch.source_file, batch.file_name, batch.sha256, batch.size_bytes,
-                 ",".join(curves) or batch.curve, batch.layout, started, utc_now(), len(rows) + n_rej, len(rows),
-                 revised, unchanged, n_rej, status, batch.error,
-                 json.dumps(batch.validations, default=str) if batch.validations else None],
+                 ",".join(curves) or batch.curve, batch.layout, started, utc_now(), n_rows + n_rej, n_rows,
+                 revised, n_rows - new - revised, n_rej, status, batch.error, batch.validation_json],
             )
             con.execute("COMMIT")
         except BaseException:
@@ -281,10 +297,15 @@ class Loader:
         if batch.error is not None:
             return LoadOutcome(batch.source_file, "refused", load_id, detail=batch.error)
         loaded[batch.sha256] = load_id
-        if write.any():
-            self._remember(names, keys, rates, write)
-        span = rows["as_of"] if len(rows) else None
-        return LoadOutcome(batch.source_file, "loaded", load_id, len(rows) + n_rej, len(rows), new, revised,
-                           unchanged, n_rej, curves=curves,
-                           first_day=None if span is None else span.min(),
-                           last_day=None if span is None else span.max())
+        if new or revised:
+            values = rates.tolist()
+            for curve, a, z in batch.curve_spans:
+                state = self._current[curve]  # read by _classify before the write
+                if every:
+                    state.update(zip(keys[a:z], values[a:z], strict=True))
+                else:
+                    state.update((k, v) for k, v, w in zip(keys[a:z], values[a:z], write[a:z].tolist(), strict=True)
+                                 if w)
+        return LoadOutcome(batch.source_file, "loaded", load_id, n_rows + n_rej, n_rows, new, revised,
+                           n_rows - new - revised, n_rej, curves=curves, first_day=batch.first_day,
+                           last_day=batch.last_day)
