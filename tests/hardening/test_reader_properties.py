@@ -132,3 +132,98 @@ def _good_bytes() -> dict[str, bytes]:
 
 
 _GOOD = _good_bytes()
+
+
+# --- the column-wise Parquet path against the cell-by-cell one ------------------------------------
+#
+# A long-layout Parquet file with typed columns is read column-wise (pipeline.readers._typed_long);
+# any other goes cell by cell through text. The reference here is that text path run on the same
+# table: both must give the same rows, values, lines and raw text, whatever the table holds.
+
+_TENOR_TEXT = ["1W", "1M", "3M", " 6M", "1Y", "10y", "30Y", "12M", "7Q", "", "ON", "abc"]
+_DATE_TYPES = st.sampled_from([pa.date32(), pa.timestamp("us"), pa.timestamp("ns"), pa.timestamp("s", tz="UTC"),
+                               pa.string()])
+
+
+@SETTINGS
+@given(n=st.integers(0, 25), data=st.data(), date_type=_DATE_TYPES,
+       rate_type=st.sampled_from([pa.float64(), pa.float32(), pa.int64()]),
+       names=st.sampled_from([("date", "tenor", "rate"), ("As_Of", "Tenor", "RATE"), (" date", "tenor ", "rate"),
+                              ("observation_date", "tenor", "rate")]),
+       with_curve=st.booleans(), order=st.permutations(range(4)))
+def test_typed_parquet_reads_as_the_text_path_does(n, data, date_type, rate_type, names, with_curve, order):
+    import datetime as dt
+
+    import pandas as pd
+
+    from pipeline.readers import _long, _table_grid, _typed_long
+
+    days = data.draw(st.lists(st.one_of(st.none(), st.integers(-30_000, 40_000)), min_size=n, max_size=n))
+    if not data.draw(st.booleans()):
+        days = [0 if d is None else d for d in days]           # mostly, dates are all present
+    tenors = data.draw(st.lists(st.sampled_from(_TENOR_TEXT[:7] if data.draw(st.booleans()) else _TENOR_TEXT),
+                                min_size=n, max_size=n))
+    rates = data.draw(st.lists(st.one_of(st.none(), st.floats(width=32 if rate_type == pa.float32() else 64),
+                                         st.floats(-0.05, 0.2)), min_size=n, max_size=n))
+    curves = data.draw(st.lists(st.one_of(st.none(), st.sampled_from(["swap", " swap ", "", "govt"])),
+                                min_size=n, max_size=n))
+    base = dt.date(1970, 1, 1)
+    as_dates = [None if d is None else base + dt.timedelta(days=d) for d in days]
+    if pa.types.is_timestamp(date_type):
+        hours = data.draw(st.lists(st.integers(0, 23), min_size=n, max_size=n))
+        stamps = [None if x is None else dt.datetime.combine(x, dt.time(h))
+                  for x, h in zip(as_dates, hours, strict=True)]
+        col = pa.array(stamps, type=pa.timestamp("us")).cast(date_type)
+    elif date_type == pa.string():
+        col = pa.array([None if x is None else x.isoformat() for x in as_dates])
+    else:
+        col = pa.array(as_dates, type=pa.date32())
+    if rate_type == pa.int64():
+        whole = [None if r is None or not math.isfinite(r) or abs(r) > 1e12 else int(r * 1000) for r in rates]
+        rate_col = pa.array(whole, pa.int64())
+    else:
+        rate_col = pa.array(rates, type=pa.float64()).cast(rate_type) if n else pa.array([], rate_type)
+    columns = [(names[0], col), (names[1], pa.array(tenors, pa.string())), (names[2], rate_col),
+               ("curve", pa.array(curves, pa.string()))]
+    columns = [columns[i] for i in order if with_curve or i != 3]
+    table = pa.table({k: v for k, v in columns})
+    buf = io.BytesIO()
+    pq.write_table(table, buf)
+    got = read_rate_file(buf.getvalue(), "f.parquet")
+    table = pq.read_table(io.BytesIO(buf.getvalue()))
+    want = _long(_table_grid(table), "iso")
+    TALLY.property_examples += 1
+    assert got.error == want.error and got.layout == want.layout and got.columns == want.columns
+    pd.testing.assert_frame_equal(got.rows, want.rows, check_dtype=True, check_exact=True)
+    pd.testing.assert_frame_equal(got.rejected, want.rejected, check_dtype=True, check_exact=True)
+    # the column-wise path must really be the one taken for clean typed tables
+    clean = (date_type == pa.date32() and rate_type != pa.int64() and None not in days
+             and set(tenors) <= set(_TENOR_TEXT[:7]) and all(r is None or math.isfinite(r) for r in rates)
+             and all(-354285 <= d <= 2932896 for d in days))
+    if clean:
+        assert _typed_long(table) is not None
+
+
+_SAMPLE_CHARS = st.sampled_from([",", ";", "\t", "|", "\n", "\n", " ", "a", "3M", "4.1", "2031-01-02", '"', "'", "",
+                                 '"x"', ",,", "\n\n"])
+
+
+@SETTINGS
+@given(parts=st.lists(_SAMPLE_CHARS, max_size=60), repeat=st.integers(1, 6))
+def test_plain_delimiter_agrees_with_the_sniffer(parts, repeat):
+    # csv.Sniffer (the standard library) is the reference; the shortcut may decline, never disagree
+    from pipeline.readers import _plain_delimiter, _sniffed_delimiter
+
+    line = "".join(parts)
+    for sample in (line, "\n".join([line] * repeat)):
+        TALLY.property_examples += 1
+        plain = _plain_delimiter(sample)
+        if plain is not None:
+            assert plain == _sniffed_delimiter(sample)
+
+
+def test_plain_delimiter_takes_the_usual_files():
+    from pipeline.readers import _plain_delimiter
+
+    assert _plain_delimiter("date,3M,1Y\n2031-01-02,4.1,4.2\n2031-01-03,4.1,4.3") == ","
+    assert _plain_delimiter("date;3M\n2031-01-02;4,1") is None      # a decimal comma: the sniffer decides
