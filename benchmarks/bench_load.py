@@ -139,7 +139,7 @@ def main() -> None:
         ("    record (DuckDB transactions)", ph("record")),
     ]
     width = max(len(r[0]) for r in rows) + 2
-    header = f"{'phase':<{width}}{'seconds':>9}{'runs':>22}"
+    header = f"{'phase':<{width}}{'seconds':>9}  {'runs':<36}"
     print(header)
     print("-" * len(header))
     keys = ["process", "gx_import", "load", "cpu", "single", "read", "intake", "gx_rows", "record"]
@@ -150,7 +150,7 @@ def main() -> None:
             vals = [r["phases"][key] for r in single]
         else:
             vals = [r[key] for r in runs]
-        print(f"{label:<{width}}{value:9.2f}{', '.join(f'{v:.2f}' for v in vals):>22}")
+        print(f"{label:<{width}}{value:9.2f}  {', '.join(f'{v:.2f}' for v in vals):<36}")
     load = m("load")
     print(f"\nrows per second (load_files): {r0['rows'] / load:,.0f}; reading ahead / one process: "
           f"{load / m('load', single):.2f}x")
