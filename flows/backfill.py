@@ -37,7 +37,7 @@ from flows import build_step
 from flows.daily import _retry_condition, check_quotes, realize_forwards, refresh_audit
 from pipeline.config import Config, CurveConfig, load_config
 from pipeline.forwards import ForwardGrid, ZeroGrid
-from warehouse.connect import writer
+from warehouse.connect import one_thread, writer
 from warehouse.frames import QuotePanel, read_frame, read_quote_panel
 
 __all__ = [
@@ -176,10 +176,35 @@ def compute_chunk(job: ChunkJob) -> ChunkResult:
                        b.forwards, b.shape, b.params, b.reasons, time.perf_counter() - t)
 
 
-@task(name="compute chunk", cache_policy=NO_CACHE)
-def compute_chunk_task(job: ChunkJob) -> ChunkResult:
-    """A Prefect task around :func:`compute_chunk` (runs on any worker; never opens the store)."""
-    return compute_chunk(job)
+def job_cost(job: ChunkJob) -> int:
+    """Relative work of a chunk: days x tenors, four times over for a par curve (its bootstrap)."""
+    return job.days * len(job.tenors) * (4 if job.config.quote == "par" else 1)
+
+
+def bundle_jobs(jobs: list[ChunkJob], bundles: int | None) -> list[list[ChunkJob]]:
+    """The chunks grouped into at most ``bundles`` lists of about equal cost, costliest first.
+
+    ``None`` keeps one chunk per list. Each Prefect task sent to Dask costs the flow process tens of
+    milliseconds (Prefect serialises its settings and context for every submission), so on a cluster
+    a few tasks of many chunks beat many tasks of one. Greedy: each chunk, costliest first, joins the
+    cheapest list so far.
+    """
+    order = sorted(jobs, key=lambda j: (-job_cost(j), j.curve, j.index))
+    if bundles is None or bundles >= len(order):
+        return [[j] for j in order]
+    groups: list[list[ChunkJob]] = [[] for _ in range(max(bundles, 1))]
+    load = [0] * len(groups)
+    for j in order:
+        k = load.index(min(load))
+        groups[k].append(j)
+        load[k] += job_cost(j)
+    return sorted((g for g in groups if g), key=lambda g: -sum(job_cost(j) for j in g))
+
+
+@task(name="compute chunks", cache_policy=NO_CACHE)
+def compute_chunks_task(jobs: list[ChunkJob]) -> list[ChunkResult]:
+    """A Prefect task around :func:`compute_chunk` for a list of chunks (any worker; never opens the store)."""
+    return [compute_chunk(j) for j in jobs]
 
 
 # --- writing (flow process only) ----------------------------------------------------------------
@@ -212,24 +237,28 @@ def write_chunks(cfg: Config, futures: list, total_days: int) -> dict[str, dict]
     per_curve: dict[str, dict] = {}
     done = 0
     _report("build", 0, total_days)
-    with writer(cfg.store_path) as con:
+    # one DuckDB thread: the cores belong to the chunks' computation, and a chunk's writes are small
+    with writer(cfg.store_path) as con, one_thread(con):
         for fut in as_completed(futures):
             t = time.perf_counter()
-            res: ChunkResult = fut.result()
-            t_fetched = time.perf_counter()
-            write_chunk(con, cfg, res, version)
-            info = per_curve.setdefault(res.curve, _empty_counts())
-            info["fetch_seconds"] += t_fetched - t
-            info["write_seconds"] += time.perf_counter() - t_fetched
-            info["days_built"] += int(res.ok.sum())
-            info["failed"] += int((~res.ok).sum())
-            info["forwards"] += len(res.forwards)
-            info["chunks"] += 1
-            info["compute_seconds"] += res.seconds
-            for r, n in res.reasons.items():
-                info["reasons"][r] = info["reasons"].get(r, 0) + n
-            done += len(res.as_of)
-            _report("build", done, total_days)
+            results: list[ChunkResult] = fut.result()
+            fetched = time.perf_counter() - t
+            for res in results:
+                t = time.perf_counter()
+                write_chunk(con, cfg, res, version)
+                info = per_curve.setdefault(res.curve, _empty_counts())
+                info["fetch_seconds"] += fetched
+                fetched = 0.0
+                info["write_seconds"] += time.perf_counter() - t
+                info["days_built"] += int(res.ok.sum())
+                info["failed"] += int((~res.ok).sum())
+                info["forwards"] += len(res.forwards)
+                info["chunks"] += 1
+                info["compute_seconds"] += res.seconds
+                for r, n in res.reasons.items():
+                    info["reasons"][r] = info["reasons"].get(r, 0) + n
+                done += len(res.as_of)
+                _report("build", done, total_days)
     return per_curve
 
 
@@ -275,8 +304,11 @@ class BackfillSummary:
 
 @flow(name="afterward-backfill", log_prints=False)
 def backfill(config_path: str, first: str | None = None, last: str | None = None, chunk_days: int = CHUNK_DAYS,
-             rebuild: bool = False) -> BackfillSummary:
+             rebuild: bool = False, tasks: int | None = None) -> BackfillSummary:
     """Build and realise every day of ``[first, last]`` (ISO dates; None: open-ended) in parallel chunks.
+
+    ``tasks`` groups the chunks into at most that many Prefect tasks (see :func:`bundle_jobs`; the
+    command asks for two per Dask worker); None sends one task per chunk.
 
     Runs the checks first (a day held back by a reject finding is not built), then the chunks on
     the flow's task runner, one writer in this process, the build step once over the range,
@@ -302,9 +334,7 @@ def backfill(config_path: str, first: str | None = None, last: str | None = None
     log.info("backfill %s..%s: %d day(s) due in %d chunk(s)", first, last, summary.days_planned, len(jobs))
     # the costliest chunks first, so the slowest curve does not start last (a par curve needs a
     # bootstrap: several times the work of a curve quoted in zero rates)
-    order = sorted(jobs, key=lambda j: (-j.days * len(j.tenors) * (4 if j.config.quote == "par" else 1), j.curve,
-                                        j.index))
-    futures = [compute_chunk_task.submit(j) for j in order]
+    futures = [compute_chunks_task.submit(group) for group in bundle_jobs(jobs, tasks)]
     per_curve = write_chunks(cfg, quote(futures), summary.days_planned)
     for name in cfg.curves:
         summary.curves[name] = per_curve.get(name, _empty_counts())
@@ -391,6 +421,21 @@ def local_cluster(workers: int) -> Iterator[object]:
         with Client(cluster) as client:
             client.run(_warm_up)
         yield cluster
+
+
+def tasks_for(workers: int = 1, scheduler: str | None = None) -> int | None:
+    """How many Prefect tasks the backfill should send: two per Dask worker thread (so the writer
+    stores one round while the next computes), or None (one per chunk) on the in-process runner.
+    For an existing cluster its threads are counted; if it cannot be asked, None."""
+    if scheduler:
+        try:
+            from distributed import Client
+
+            with Client(scheduler, timeout=10, set_as_default=False) as client:
+                return 2 * max(sum(client.nthreads().values()), 1)
+        except Exception:  # noqa: BLE001 - the runner itself reports an unreachable cluster
+            return None
+    return 2 * workers if workers > 1 else None
 
 
 def task_runner_for(workers: int = 1, scheduler: str | None = None):  # noqa: ANN201

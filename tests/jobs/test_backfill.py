@@ -106,3 +106,22 @@ def test_a_chunk_is_pure_computation_on_what_the_plan_read(loaded_store, tmp_pat
     pd.testing.assert_frame_equal(a.forwards.frame(), b.forwards.frame())
     c = cfg.curve(jobs[0].curve)
     assert len(a.forwards) == int(a.ok.sum()) * len(c.forward_starts) * len(c.forward_tenors)
+
+
+def test_bundles_hold_every_chunk_once_and_balance_their_cost(loaded_store, tmp_path):
+    # LPT grouping (longest job first onto the least-loaded group): Graham's bound says the largest
+    # group costs at most 4/3 of the optimum, so at most 4/3 of (total / groups) or one chunk's cost
+    from flows.backfill import bundle_jobs, job_cost
+
+    cfg = copy_project(loaded_store, tmp_path, "bundles")
+    jobs = plan_chunks(cfg, None, None, 97)
+    assert len(jobs) > 8
+    for n in (1, 2, 4, 7):
+        groups = bundle_jobs(jobs, n)
+        assert len(groups) == n
+        keys = sorted((j.curve, j.index) for g in groups for j in g)
+        assert keys == sorted((j.curve, j.index) for j in jobs)
+        costs = [sum(job_cost(j) for j in g) for g in groups]
+        assert costs == sorted(costs, reverse=True)
+        assert max(costs) <= max(4 / 3 * sum(costs) / n, max(job_cost(j) for j in jobs)) + 1e-9
+    assert [len(g) for g in bundle_jobs(jobs, None)] == [1] * len(jobs)
