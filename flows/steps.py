@@ -25,6 +25,7 @@ from warehouse.loads import FileBatch, Loader, LoadOutcome, file_batch
 
 __all__ = ["UserError", "load_files", "prepare_files"]
 
+
 class UserError(RuntimeError):
     """A mistake in what the user asked for; the message is one line."""
 
