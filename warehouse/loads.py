@@ -75,10 +75,6 @@ class FileBatch:
     last_day: object = None
 
     @property
-    def rows_accepted(self) -> int:
-        return self.quotes.num_rows
-
-    @property
     def rows_rejected(self) -> int:
         return 0 if self.rejected is None else self.rejected.num_rows
 
@@ -112,8 +108,8 @@ def file_batch(*, source_file: str, file_name: str, sha256: str, size_bytes: int
         }, schema=_QUOTE_SCHEMA).sort_by([("curve", "ascending"), ("as_of", "ascending"), ("tenor", "ascending")])
         days = quotes.column("as_of").cast(pa.int32()).to_numpy().astype(np.int64)
         tenors = quotes.column("tenor").to_pylist()
-        names = quotes.column("curve").to_pylist()
-        cuts = [0] + [i for i in range(1, len(names)) if names[i] != names[i - 1]] + [len(names)]
+        names = np.asarray(quotes.column("curve").to_pylist(), dtype=object)
+        cuts = [0, *(np.flatnonzero(names[1:] != names[:-1]) + 1).tolist(), len(names)]
         spans = tuple((str(names[a]), a, z) for a, z in itertools.pairwise(cuts))
         first, last = rows["as_of"].min(), rows["as_of"].max()
     rj = None
@@ -298,14 +294,10 @@ class Loader:
             return LoadOutcome(batch.source_file, "refused", load_id, detail=batch.error)
         loaded[batch.sha256] = load_id
         if new or revised:
-            values = rates.tolist()
+            values, wrote = rates.tolist(), write.tolist()
             for curve, a, z in batch.curve_spans:
                 state = self._current[curve]  # read by _classify before the write
-                if every:
-                    state.update(zip(keys[a:z], values[a:z], strict=True))
-                else:
-                    state.update((k, v) for k, v, w in zip(keys[a:z], values[a:z], write[a:z].tolist(), strict=True)
-                                 if w)
+                state.update((k, v) for k, v, w in zip(keys[a:z], values[a:z], wrote[a:z], strict=True) if w)
         return LoadOutcome(batch.source_file, "loaded", load_id, n_rows + n_rej, n_rows, new, revised,
                            n_rows - new - revised, n_rej, curves=curves, first_day=batch.first_day,
                            last_day=batch.last_day)
