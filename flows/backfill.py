@@ -2,11 +2,13 @@
 
 The flow reads each curve's quotes for the range once, picks the days due (not built yet, or whose
 quotes changed since their build, and not held back by an open reject finding; every day with
-``rebuild``), and splits them into chunks of days. Each chunk is computed by a task that is pure
-computation (:func:`compute_chunk`: curves, zero rates, forwards and shape checks for the chunk's
-days, returned as frames); those tasks run in parallel on the flow's task runner, which may be a
-local or remote Dask cluster. Only the flow's own process writes: one writer task stores each
-chunk as it arrives, one transaction per chunk, through the build step's writer. Then the build
+``rebuild``), and splits them into chunks of days. Each chunk is pure computation
+(:func:`compute_chunk`: curves, zero rates, forwards and shape checks for the chunk's days,
+returned as arrays), run in parallel on the flow's task runner: as Prefect tasks in this process,
+or on Prefect's Dask task runner (a local or remote cluster) as Dask tasks sent through the
+runner's client (see :func:`submit_chunks` for why not Prefect tasks there). Only the flow's own
+process writes: one writer task stores each chunk as it arrives, one transaction per chunk,
+through the build step's writer. Then the build
 step runs once over the range (it withdraws the builds of days now held back, and would catch any
 day a chunk missed), and realisation and the audit run once at the end.
 
@@ -22,6 +24,7 @@ from __future__ import annotations
 
 import contextlib
 import time
+import uuid
 from collections.abc import Callable, Iterator
 from dataclasses import dataclass, field
 
@@ -30,6 +33,7 @@ import pandas as pd
 from prefect import flow, get_run_logger, task
 from prefect.artifacts import create_table_artifact
 from prefect.cache_policies import NO_CACHE
+from prefect.context import FlowRunContext
 from prefect.futures import as_completed
 from prefect.utilities.annotations import quote
 
@@ -46,10 +50,12 @@ __all__ = [
     "ChunkResult",
     "backfill",
     "compute_chunk",
+    "costliest_first",
     "local_cluster",
     "make_local_cluster",
     "plan_chunks",
     "progress_hook",
+    "submit_chunks",
     "task_runner_for",
     "write_chunk",
 ]
@@ -181,30 +187,59 @@ def job_cost(job: ChunkJob) -> int:
     return job.days * len(job.tenors) * (4 if job.config.quote == "par" else 1)
 
 
-def bundle_jobs(jobs: list[ChunkJob], bundles: int | None) -> list[list[ChunkJob]]:
-    """The chunks grouped into at most ``bundles`` lists of about equal cost, costliest first.
+def costliest_first(jobs: list[ChunkJob]) -> list[ChunkJob]:
+    """The chunks in the order they should start: costliest first, so that the slowest curve's
+    chunks do not start last and the workers finish together (longest-processing-time order)."""
+    return sorted(jobs, key=lambda j: (-job_cost(j), j.curve, j.index))
 
-    ``None`` keeps one chunk per list. Each Prefect task sent to Dask costs the flow process tens of
-    milliseconds (Prefect serialises its settings and context for every submission), so on a cluster
-    a few tasks of many chunks beat many tasks of one. Greedy: each chunk, costliest first, joins the
-    cheapest list so far.
+
+@task(name="compute chunk", cache_policy=NO_CACHE)
+def compute_chunk_task(job: ChunkJob) -> ChunkResult:
+    """A Prefect task around :func:`compute_chunk`, for the in-process task runner."""
+    return compute_chunk(job)
+
+
+def submit_chunks(jobs: list[ChunkJob]) -> list:
+    """Start every chunk on the flow's task runner; returns their futures in ``jobs``' order.
+
+    On Prefect's Dask task runner each chunk goes to the cluster through the runner's own Dask
+    client as a plain Dask task (the function :func:`compute_chunk`, no Prefect task run around it):
+    each Prefect task sent to Dask costs the flow process about 0.1 s of serialising Prefect's
+    settings and context, and each worker the task engine's API calls, which on two cores cost more
+    than a second worker gains (measured by ``benchmarks/bench_daily.py``). On any other runner each
+    chunk is a Prefect task.
     """
-    order = sorted(jobs, key=lambda j: (-job_cost(j), j.curve, j.index))
-    if bundles is None or bundles >= len(order):
-        return [[j] for j in order]
-    groups: list[list[ChunkJob]] = [[] for _ in range(max(bundles, 1))]
-    load = [0] * len(groups)
-    for j in order:
-        k = load.index(min(load))
-        groups[k].append(j)
-        load[k] += job_cost(j)
-    return sorted((g for g in groups if g), key=lambda g: -sum(job_cost(j) for j in g))
+    runner = FlowRunContext.get().task_runner
+    if _is_dask(runner):
+        client = runner.client
+        return [client.submit(compute_chunk, job, pure=False, key=f"afterward-chunk-{job.curve}-{job.index}-"
+                              f"{uuid.uuid4().hex[:12]}") for job in jobs]
+    return [compute_chunk_task.submit(job) for job in jobs]
 
 
-@task(name="compute chunks", cache_policy=NO_CACHE)
-def compute_chunks_task(jobs: list[ChunkJob]) -> list[ChunkResult]:
-    """A Prefect task around :func:`compute_chunk` for a list of chunks (any worker; never opens the store)."""
-    return [compute_chunk(j) for j in jobs]
+def _is_dask(runner: object) -> bool:
+    try:
+        from prefect_dask import DaskTaskRunner
+    except ImportError:  # pragma: no cover - prefect-dask is a dependency
+        return False
+    return isinstance(runner, DaskTaskRunner)
+
+
+def completed(futures: list) -> Iterator[ChunkResult]:
+    """The futures' results in the order they finish (Dask or Prefect futures; a failed chunk raises)."""
+    if not futures:
+        return
+    try:
+        from distributed import Future as DaskFuture
+        from distributed import as_completed as dask_completed
+    except ImportError:  # pragma: no cover - distributed comes with prefect-dask
+        DaskFuture = ()  # noqa: N806
+    if isinstance(futures[0], DaskFuture):
+        for fut in dask_completed(futures, loop=futures[0].client.loop):
+            yield fut.result()
+    else:
+        for fut in as_completed(futures):
+            yield fut.result()
 
 
 # --- writing (flow process only) ----------------------------------------------------------------
@@ -232,6 +267,7 @@ def write_chunks(cfg: Config, futures: list, total_days: int) -> dict[str, dict]
     """The one writer: store each chunk as its computation finishes; returns counts per curve.
 
     Runs in the flow's own process (called, not submitted), so only this process opens the store.
+    A retry stores again what it already stored (each chunk replaces its days' builds), then the rest.
     """
     version = build_step.code_version()
     per_curve: dict[str, dict] = {}
@@ -239,26 +275,27 @@ def write_chunks(cfg: Config, futures: list, total_days: int) -> dict[str, dict]
     _report("build", 0, total_days)
     # one DuckDB thread: the cores belong to the chunks' computation, and a chunk's writes are small
     with writer(cfg.store_path) as con, one_thread(con):
-        for fut in as_completed(futures):
+        arrivals = completed(futures)
+        while True:
             t = time.perf_counter()
-            results: list[ChunkResult] = fut.result()
+            res = next(arrivals, None)
+            if res is None:
+                break
             fetched = time.perf_counter() - t
-            for res in results:
-                t = time.perf_counter()
-                write_chunk(con, cfg, res, version)
-                info = per_curve.setdefault(res.curve, _empty_counts())
-                info["fetch_seconds"] += fetched
-                fetched = 0.0
-                info["write_seconds"] += time.perf_counter() - t
-                info["days_built"] += int(res.ok.sum())
-                info["failed"] += int((~res.ok).sum())
-                info["forwards"] += len(res.forwards)
-                info["chunks"] += 1
-                info["compute_seconds"] += res.seconds
-                for r, n in res.reasons.items():
-                    info["reasons"][r] = info["reasons"].get(r, 0) + n
-                done += len(res.as_of)
-                _report("build", done, total_days)
+            t = time.perf_counter()
+            write_chunk(con, cfg, res, version)
+            info = per_curve.setdefault(res.curve, _empty_counts())
+            info["fetch_seconds"] += fetched
+            info["write_seconds"] += time.perf_counter() - t
+            info["days_built"] += int(res.ok.sum())
+            info["failed"] += int((~res.ok).sum())
+            info["forwards"] += len(res.forwards)
+            info["chunks"] += 1
+            info["compute_seconds"] += res.seconds
+            for r, n in res.reasons.items():
+                info["reasons"][r] = info["reasons"].get(r, 0) + n
+            done += len(res.as_of)
+            _report("build", done, total_days)
     return per_curve
 
 
@@ -304,11 +341,8 @@ class BackfillSummary:
 
 @flow(name="afterward-backfill", log_prints=False)
 def backfill(config_path: str, first: str | None = None, last: str | None = None, chunk_days: int = CHUNK_DAYS,
-             rebuild: bool = False, tasks: int | None = None) -> BackfillSummary:
+             rebuild: bool = False) -> BackfillSummary:
     """Build and realise every day of ``[first, last]`` (ISO dates; None: open-ended) in parallel chunks.
-
-    ``tasks`` groups the chunks into at most that many Prefect tasks (see :func:`bundle_jobs`; the
-    command asks for two per Dask worker); None sends one task per chunk.
 
     Runs the checks first (a day held back by a reject finding is not built), then the chunks on
     the flow's task runner, one writer in this process, the build step once over the range,
@@ -332,9 +366,7 @@ def backfill(config_path: str, first: str | None = None, last: str | None = None
     summary.days_planned = sum(j.days for j in jobs)
     t = lap("plan", t)
     log.info("backfill %s..%s: %d day(s) due in %d chunk(s)", first, last, summary.days_planned, len(jobs))
-    # the costliest chunks first, so the slowest curve does not start last (a par curve needs a
-    # bootstrap: several times the work of a curve quoted in zero rates)
-    futures = [compute_chunks_task.submit(group) for group in bundle_jobs(jobs, tasks)]
+    futures = submit_chunks(costliest_first(jobs))
     per_curve = write_chunks(cfg, quote(futures), summary.days_planned)
     for name in cfg.curves:
         summary.curves[name] = per_curve.get(name, _empty_counts())
@@ -370,11 +402,8 @@ def backfill(config_path: str, first: str | None = None, last: str | None = None
 
 def _warm_up() -> None:
     """Get a worker ready before the first chunk arrives (while the cluster starts, not in the job's
-    time): import the chunk computation's modules and Prefect's task engine, which runs each task
-    there, and build one small chunk so that the libraries' first-call costs are paid too."""
-    import prefect.task_engine  # noqa: F401
-    import prefect_dask  # noqa: F401
-
+    time): import the chunk computation's modules and build one small chunk so that the libraries'
+    first-call costs are paid too."""
     from flows import build_step
     from pipeline.config import CurveConfig
     from pipeline.tenors import parse_tenor
@@ -421,21 +450,6 @@ def local_cluster(workers: int) -> Iterator[object]:
         with Client(cluster) as client:
             client.run(_warm_up)
         yield cluster
-
-
-def tasks_for(workers: int = 1, scheduler: str | None = None) -> int | None:
-    """How many Prefect tasks the backfill should send: two per Dask worker thread (so the writer
-    stores one round while the next computes), or None (one per chunk) on the in-process runner.
-    For an existing cluster its threads are counted; if it cannot be asked, None."""
-    if scheduler:
-        try:
-            from distributed import Client
-
-            with Client(scheduler, timeout=10, set_as_default=False) as client:
-                return 2 * max(sum(client.nthreads().values()), 1)
-        except Exception:  # noqa: BLE001 - the runner itself reports an unreachable cluster
-            return None
-    return 2 * workers if workers > 1 else None
 
 
 def task_runner_for(workers: int = 1, scheduler: str | None = None):  # noqa: ANN201

@@ -209,7 +209,7 @@ def cli_backfill(config_path: Path, first: str | None, last: str | None, workers
             startup = stack.enter_context(start_prefect(alongside=start_cluster if want_cluster else None))
         except Exception as exc:
             return _failure(console, "starting Prefect or Dask", exc)
-        from flows.backfill import backfill, progress_hook, task_runner_for, tasks_for
+        from flows.backfill import backfill, progress_hook, task_runner_for
 
         cluster = box["cluster"]
         address = scheduler or (getattr(cluster, "scheduler_address", None) if cluster is not None else None)
@@ -229,7 +229,7 @@ def cli_backfill(config_path: Path, first: str | None, last: str | None, workers
             try:
                 with progress_hook(on_progress):
                     summary = backfill.with_options(task_runner=runner)(config_path=str(config_path), first=first,
-                                                                        last=last, tasks=tasks_for(workers, address))
+                                                                        last=last)
             except Exception as exc:
                 return _failure(console, "backfill", exc)
             flow_seconds = time.perf_counter() - t

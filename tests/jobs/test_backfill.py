@@ -108,20 +108,16 @@ def test_a_chunk_is_pure_computation_on_what_the_plan_read(loaded_store, tmp_pat
     assert len(a.forwards) == int(a.ok.sum()) * len(c.forward_starts) * len(c.forward_tenors)
 
 
-def test_bundles_hold_every_chunk_once_and_balance_their_cost(loaded_store, tmp_path):
-    # LPT grouping (longest job first onto the least-loaded group): Graham's bound says the largest
-    # group costs at most 4/3 of the optimum, so at most 4/3 of (total / groups) or one chunk's cost
-    from flows.backfill import bundle_jobs, job_cost
+def test_chunks_start_costliest_first(loaded_store, tmp_path):
+    # longest-processing-time order (common scheduling practice, no source): the par curve's
+    # bootstrap makes its chunks dearer than the zero curve's chunks of as many days
+    from flows.backfill import costliest_first, job_cost
 
-    cfg = copy_project(loaded_store, tmp_path, "bundles")
+    cfg = copy_project(loaded_store, tmp_path, "order")
     jobs = plan_chunks(cfg, None, None, 97)
-    assert len(jobs) > 8
-    for n in (1, 2, 4, 7):
-        groups = bundle_jobs(jobs, n)
-        assert len(groups) == n
-        keys = sorted((j.curve, j.index) for g in groups for j in g)
-        assert keys == sorted((j.curve, j.index) for j in jobs)
-        costs = [sum(job_cost(j) for j in g) for g in groups]
-        assert costs == sorted(costs, reverse=True)
-        assert max(costs) <= max(4 / 3 * sum(costs) / n, max(job_cost(j) for j in jobs)) + 1e-9
-    assert [len(g) for g in bundle_jobs(jobs, None)] == [1] * len(jobs)
+    ordered = costliest_first(jobs)
+    assert sorted((j.curve, j.index) for j in ordered) == sorted((j.curve, j.index) for j in jobs)
+    costs = [job_cost(j) for j in ordered]
+    assert costs == sorted(costs, reverse=True)
+    par = {n for n in cfg.curves if cfg.curve(n).quote == "par"}
+    assert par and ordered[0].curve in par
