@@ -217,13 +217,13 @@ def bench_backfill(repeat: int, base: Path) -> None:
                 raise SystemExit(f"backfill --workers {workers} failed:\n{proc.stdout}\n{proc.stderr}")
             rows[workers].append((float(m.group(1)), float(m.group(2) or 0), float(m.group(3)), wall))
             shutil.rmtree(work_dir)
-            print(f"backfill --workers {workers}: work {float(m.group(3)):.1f} s, command {wall:.1f} s", flush=True)
+            print(f"backfill --workers {workers}: work {float(m.group(3)):.2f} s, command {wall:.1f} s", flush=True)
     med = {w: [statistics.median(r[k] for r in rs) for k in range(4)] for w, rs in rows.items()}
     print()
     print(f"30-year demo backfill, `afterward backfill --workers N` (medians of {repeat}; seconds)")
     print(f"{'workers':>8} {'start-up':>9} {'cluster':>8} {'work':>7} {'command':>8}")
     for w, (st, cl, work, wall) in med.items():
-        print(f"{w:>8} {st:9.1f} {cl:8.1f} {work:7.1f} {wall:8.1f}")
+        print(f"{w:>8} {st:9.1f} {cl:8.1f} {work:7.2f} {wall:8.1f}")
     print(f"2 workers / 1 worker: work {med[2][2] / med[1][2]:.2f}x, command {med[2][3] / med[1][3]:.2f}x "
           "(target < 1)")
     print(f"machine probe: one CPU-bound process alone {alone:.2f} s, two at once {both:.2f} s each "

@@ -8,9 +8,10 @@ returned as arrays), run in parallel on the flow's task runner: as Prefect tasks
 or on Prefect's Dask task runner (a local or remote cluster) as Dask tasks sent through the
 runner's client (see :func:`submit_chunks` for why not Prefect tasks there). Only the flow's own
 process writes: one writer task stores each chunk as it arrives, one transaction per chunk,
-through the build step's writer. Then the build
-step runs once over the range (it withdraws the builds of days now held back, and would catch any
-day a chunk missed), and realisation and the audit run once at the end.
+through the build step's writer. As soon as a curve's last chunk is stored, the flow finishes that
+curve while the others' chunks still compute: the build step once over the range (it withdraws
+the builds of days now held back, and would catch any day a chunk missed), then the curve's
+realisation and audit.
 
 Why one writer: DuckDB allows one writing process at a time, and Dask workers without a shared
 Prefect server would each start their own; workers therefore never open the store.
@@ -225,21 +226,61 @@ def _is_dask(runner: object) -> bool:
     return isinstance(runner, DaskTaskRunner)
 
 
-def completed(futures: list) -> Iterator[ChunkResult]:
-    """The futures' results in the order they finish (Dask or Prefect futures; a failed chunk raises)."""
+def completed(futures: list) -> Iterator[tuple[int, ChunkResult]]:
+    """``(position, result)`` of each future in the order they finish (Dask or Prefect futures; a
+    failed chunk raises)."""
     if not futures:
         return
+    where = {id(f): i for i, f in enumerate(futures)}
     try:
         from distributed import Future as DaskFuture
         from distributed import as_completed as dask_completed
     except ImportError:  # pragma: no cover - distributed comes with prefect-dask
         DaskFuture = ()  # noqa: N806
-    if isinstance(futures[0], DaskFuture):
-        for fut in dask_completed(futures, loop=futures[0].client.loop):
-            yield fut.result()
-    else:
-        for fut in as_completed(futures):
-            yield fut.result()
+    finished = (dask_completed(futures, loop=futures[0].client.loop) if isinstance(futures[0], DaskFuture)
+                else as_completed(futures))
+    for fut in finished:
+        yield where[id(fut)], fut.result()
+
+
+@dataclass
+class ChunkArrivals:
+    """The chunks on their way to the writer: ``jobs`` and their ``futures`` (same order), which of
+    them are stored, and the counts per curve of what was stored. Kept outside the writer task, so a
+    retried writer skips what it already stored."""
+
+    jobs: list[ChunkJob]
+    futures: list
+    stored: set[int] = field(default_factory=set)
+    counts: dict[str, dict] = field(default_factory=dict)
+
+    @property
+    def days_stored(self) -> int:
+        return sum(self.jobs[i].days for i in self.stored)
+
+    @property
+    def total_days(self) -> int:
+        return sum(j.days for j in self.jobs)
+
+    def left(self, curve: str) -> int:
+        """Chunks of ``curve`` not stored yet."""
+        return sum(1 for i, j in enumerate(self.jobs) if j.curve == curve and i not in self.stored)
+
+    @property
+    def done(self) -> bool:
+        return len(self.stored) == len(self.jobs)
+
+    def record(self, res: ChunkResult, fetched: float, wrote: float) -> None:
+        info = self.counts.setdefault(res.curve, _empty_counts())
+        info["fetch_seconds"] += fetched
+        info["write_seconds"] += wrote
+        info["days_built"] += int(res.ok.sum())
+        info["failed"] += int((~res.ok).sum())
+        info["forwards"] += len(res.forwards)
+        info["chunks"] += 1
+        info["compute_seconds"] += res.seconds
+        for r, n in res.reasons.items():
+            info["reasons"][r] = info["reasons"].get(r, 0) + n
 
 
 # --- writing (flow process only) ----------------------------------------------------------------
@@ -263,47 +304,44 @@ def write_chunk(con, cfg: Config, result: ChunkResult, version: str) -> None:  #
 
 @task(name="write chunks", cache_policy=NO_CACHE, retries=2, retry_condition_fn=_retry_condition,
       retry_delay_seconds=[1, 4])
-def write_chunks(cfg: Config, futures: list, total_days: int) -> dict[str, dict]:
-    """The one writer: store each chunk as its computation finishes; returns counts per curve.
+def write_chunks(cfg: Config, arrivals: ChunkArrivals) -> list[str]:
+    """The one writer: store each chunk as its computation finishes, until the last chunk of some
+    curve is stored (or every chunk is); returns the curves whose chunks are now all stored.
 
     Runs in the flow's own process (called, not submitted), so only this process opens the store.
-    A retry stores again what it already stored (each chunk replaces its days' builds), then the rest.
+    Returning when a curve is complete lets the flow realise and audit that curve while the other
+    curves' chunks are still being computed.
     """
     version = build_step.code_version()
-    per_curve: dict[str, dict] = {}
-    done = 0
-    _report("build", 0, total_days)
+    pending = [i for i in range(len(arrivals.jobs)) if i not in arrivals.stored]
+    complete: list[str] = []
     # one DuckDB thread: the cores belong to the chunks' computation, and a chunk's writes are small
     with writer(cfg.store_path) as con, one_thread(con):
-        arrivals = completed(futures)
-        while True:
+        stream = completed([arrivals.futures[i] for i in pending])
+        while not complete:
             t = time.perf_counter()
-            res = next(arrivals, None)
-            if res is None:
+            got = next(stream, None)
+            if got is None:
                 break
             fetched = time.perf_counter() - t
+            k, res = pending[got[0]], got[1]
             t = time.perf_counter()
             write_chunk(con, cfg, res, version)
-            info = per_curve.setdefault(res.curve, _empty_counts())
-            info["fetch_seconds"] += fetched
-            info["write_seconds"] += time.perf_counter() - t
-            info["days_built"] += int(res.ok.sum())
-            info["failed"] += int((~res.ok).sum())
-            info["forwards"] += len(res.forwards)
-            info["chunks"] += 1
-            info["compute_seconds"] += res.seconds
-            for r, n in res.reasons.items():
-                info["reasons"][r] = info["reasons"].get(r, 0) + n
-            done += len(res.as_of)
-            _report("build", done, total_days)
-    return per_curve
+            arrivals.stored.add(k)
+            arrivals.futures[k] = None  # lets a cluster drop the stored result
+            arrivals.record(res, fetched, time.perf_counter() - t)
+            _report("build", arrivals.days_stored, arrivals.total_days)
+            if not arrivals.left(res.curve):
+                complete.append(res.curve)
+    return complete
 
 
 @task(name="settle build", cache_policy=NO_CACHE, retries=2, retry_condition_fn=_retry_condition,
       retry_delay_seconds=[1, 4])
-def settle_build(cfg: Config, first: str | None, last: str | None) -> build_step.BuildSummary:
-    """The build step once over the range: withdraws builds of held-back days; builds any day left."""
-    return build_step.run_build(cfg, None, first, last)
+def settle_build(cfg: Config, curve: str, first: str | None, last: str | None) -> build_step.BuildSummary:
+    """The build step once over the range for ``curve``: withdraws builds of held-back days; builds
+    any day left."""
+    return build_step.run_build(cfg, curve, first, last)
 
 
 # --- the flow -----------------------------------------------------------------------------------
@@ -345,50 +383,64 @@ def backfill(config_path: str, first: str | None = None, last: str | None = None
     """Build and realise every day of ``[first, last]`` (ISO dates; None: open-ended) in parallel chunks.
 
     Runs the checks first (a day held back by a reject finding is not built), then the chunks on
-    the flow's task runner, one writer in this process, the build step once over the range,
-    realisation and the audit.
+    the flow's task runner with one writer in this process. As soon as every chunk of a curve is
+    stored, that curve is finished while the other curves' chunks are still computing: the build
+    step once over its range, then its realisation and its audit. ``seconds`` adds up each stage's
+    time across the curves ("build" is the writer's, waits for the computation included).
     """
     t0 = time.perf_counter()
     cfg = load_config(config_path)
     log = get_run_logger()
     summary = BackfillSummary(first, last)
+    summary.curves = {name: _empty_counts() for name in cfg.curves}
 
-    def lap(name: str, since: float) -> float:
-        now = time.perf_counter()
-        summary.seconds[name] = round(now - since, 4)
-        return now
+    @contextlib.contextmanager
+    def stage(name: str) -> Iterator[None]:
+        t = time.perf_counter()
+        yield
+        summary.seconds[name] = round(summary.seconds.get(name, 0.0) + time.perf_counter() - t, 4)
 
-    t = t0
-    check_quotes(cfg, first, last)
-    t = lap("check", t)
-    jobs = plan_chunks(cfg, first, last, chunk_days, rebuild)
+    def finish(name: str) -> None:
+        """The build step, realisation and audit of one curve whose chunks are all stored."""
+        with stage("settle"):
+            settled = settle_build(cfg, name, first, last)
+        info = summary.curves[name]
+        for got in settled.curves.values():
+            summary.caught_up += got["days_built"]
+            info["days_built"] += got["days_built"]
+            info["forwards"] += got["forwards"]
+            info["withdrawn"] = info.get("withdrawn", 0) + got.get("withdrawn", 0)
+        with stage("realize"):
+            realized = realize_forwards(cfg, name)
+        summary.realized += realized.realized
+        info["realized"] = sum(got["realized"] for got in realized.curves.values())
+        with stage("audit"):
+            summary.audited += refresh_audit(cfg, curve=name)
+        finished.append(name)
+        _report("finish", len(finished), len(cfg.curves))
+
+    with stage("check"):
+        check_quotes(cfg, first, last)
+    with stage("plan"):
+        jobs = costliest_first(plan_chunks(cfg, first, last, chunk_days, rebuild))
     summary.chunks = len(jobs)
     summary.days_planned = sum(j.days for j in jobs)
-    t = lap("plan", t)
     log.info("backfill %s..%s: %d day(s) due in %d chunk(s)", first, last, summary.days_planned, len(jobs))
-    futures = submit_chunks(costliest_first(jobs))
-    per_curve = write_chunks(cfg, quote(futures), summary.days_planned)
+    arrivals = ChunkArrivals(jobs, submit_chunks(jobs))
+    _report("build", 0, arrivals.total_days)
+    finished: list[str] = []
+    # curves with nothing to build are finished while the first chunks compute
     for name in cfg.curves:
-        summary.curves[name] = per_curve.get(name, _empty_counts())
-    t = lap("build", t)
-    settled = settle_build(cfg, first, last)
-    summary.caught_up = settled.days_built
-    for name, info in settled.curves.items():
-        summary.curves[name]["days_built"] += info["days_built"]
-        summary.curves[name]["forwards"] += info["forwards"]
-        summary.curves[name]["withdrawn"] = info.get("withdrawn", 0)
+        if not any(j.curve == name for j in jobs):
+            finish(name)
+    while not arrivals.done:
+        with stage("build"):
+            complete = write_chunks(cfg, quote(arrivals))
+        for name in complete:
+            summary.curves[name] = arrivals.counts[name]
+            finish(name)
     if summary.caught_up:
         log.warning("the build step built %d day(s) the chunks did not", summary.caught_up)
-    t = lap("settle", t)
-    _report("realize", 0, 1)
-    realized = realize_forwards(cfg)
-    summary.realized = realized.realized
-    for name, info in realized.curves.items():
-        summary.curves.setdefault(name, {})["realized"] = info["realized"]
-    t = lap("realize", t)
-    _report("audit", 0, 1)
-    summary.audited = refresh_audit(cfg)
-    t = lap("audit", t)
     summary.work_seconds = round(time.perf_counter() - t0, 4)
     create_table_artifact(table=summary.table(), key="afterward-backfill",
                           description=f"afterward backfill {first or 'start'}..{last or 'end'}: "

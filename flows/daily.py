@@ -332,24 +332,27 @@ def build_days(cfg: Config, first: str | None = None, last: str | None = None) -
 
 @task(name="realize", cache_policy=NO_CACHE, retries=2, retry_delay_seconds=exponential_backoff(backoff_factor=1),
       retry_condition_fn=_retry_condition)
-def realize_forwards(cfg: Config) -> RealizeSummary:
-    """Outcomes for forwards whose target date has been observed (:func:`flows.realize_step.run_realize`)."""
-    return run_realize(cfg)
+def realize_forwards(cfg: Config, curve: str | None = None) -> RealizeSummary:
+    """Outcomes for forwards whose target date has been observed (:func:`flows.realize_step.run_realize`),
+    for one curve or (None) all."""
+    return run_realize(cfg, curve)
 
 
 @task(name="audit", cache_policy=NO_CACHE, retries=2, retry_delay_seconds=exponential_backoff(backoff_factor=1),
       retry_condition_fn=_retry_condition)
-def refresh_audit(cfg: Config, force: bool = False) -> list[str]:
-    """Bring the audit up to date with the outcomes realised since the last one; returns the curves it changed.
+def refresh_audit(cfg: Config, force: bool = False, curve: str | None = None) -> list[str]:
+    """Bring the audit of one curve or (None) all up to date with the outcomes realised since the last
+    one; returns the curves it changed.
 
     Incremental (:func:`flows.audit_step.refresh_audit_incremental`: only the new outcomes are folded into
     the stored running state, with the same rows as a full recompute); ``force`` recomputes every curve.
     """
+    names = [curve] if curve else list(cfg.curves)
     if force:
-        for name in cfg.curves:
+        for name in names:
             run_audit(cfg, name)
-        return list(cfg.curves)
-    done = refresh_audit_incremental(cfg)
+        return names
+    done = refresh_audit_incremental(cfg, curve)
     return [name for name, d in done.items() if d.mode != "unchanged"]
 
 

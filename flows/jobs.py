@@ -220,8 +220,7 @@ def cli_backfill(config_path: Path, first: str | None, last: str | None, workers
 
             def on_progress(stage: str, done: int, n: int) -> None:
                 if stage not in bars:
-                    label = {"build": "building days", "realize": "realising forwards",
-                             "audit": "refreshing the audit"}.get(stage, stage)
+                    label = {"build": "building days", "finish": "realising and auditing curves"}.get(stage, stage)
                     bars[stage] = progress.add_task(label, total=n)
                 progress.update(bars[stage], completed=done, total=n)
 
