@@ -121,3 +121,31 @@ def test_chunks_start_costliest_first(loaded_store, tmp_path):
     assert costs == sorted(costs, reverse=True)
     par = {n for n in cfg.curves if cfg.curve(n).quote == "par"}
     assert par and ordered[0].curve in par
+
+
+def test_the_writer_hands_back_each_curve_once_and_never_stores_a_chunk_twice(loaded_store, tmp_path):
+    from prefect import flow
+    from prefect.utilities.annotations import quote
+
+    from flows.backfill import ChunkArrivals, costliest_first, submit_chunks, write_chunks
+
+    cfg = copy_project(loaded_store, tmp_path, "writer")
+
+    @flow(task_runner=task_runner_for(1))
+    def store_all() -> tuple:
+        jobs = costliest_first(plan_chunks(cfg, None, None, 200))
+        arrivals = ChunkArrivals(jobs, submit_chunks(jobs))
+        rounds = []
+        while not arrivals.done:
+            rounds.append(write_chunks(cfg, quote(arrivals)))
+        rounds.append(write_chunks(cfg, quote(arrivals)))  # a writer called again (as a retry is) stores nothing
+        return jobs, arrivals, rounds
+
+    jobs, arrivals, rounds = store_all()
+    assert sorted(c for r in rounds for c in r) == sorted(cfg.curves)
+    assert rounds[-1] == []
+    assert sum(c["chunks"] for c in arrivals.counts.values()) == len(jobs)
+    assert arrivals.days_stored == arrivals.total_days == sum(j.days for j in jobs)
+    with reader(cfg.store_path) as con:
+        [(n,)] = con.execute("SELECT count(*) FROM forwards").fetchall()
+    assert n == sum(c["forwards"] for c in arrivals.counts.values()) > 0
