@@ -393,6 +393,7 @@ def backfill(config_path: str, first: str | None = None, last: str | None = None
     log = get_run_logger()
     summary = BackfillSummary(first, last)
     summary.curves = {name: _empty_counts() for name in cfg.curves}
+    finished: list[str] = []
 
     @contextlib.contextmanager
     def stage(name: str) -> Iterator[None]:
@@ -428,7 +429,6 @@ def backfill(config_path: str, first: str | None = None, last: str | None = None
     log.info("backfill %s..%s: %d day(s) due in %d chunk(s)", first, last, summary.days_planned, len(jobs))
     arrivals = ChunkArrivals(jobs, submit_chunks(jobs))
     _report("build", 0, arrivals.total_days)
-    finished: list[str] = []
     # curves with nothing to build are finished while the first chunks compute
     for name in cfg.curves:
         if not any(j.curve == name for j in jobs):
