@@ -34,7 +34,9 @@ from warehouse.frames import read_frame
 from warehouse.loads import utc_now
 from warehouse.query import fetch_one
 
-__all__ = ["STATE_FORMAT", "AuditRefresh", "read_outcomes", "refresh_audit_incremental", "run_audit"]
+__all__ = ["STATE_FORMAT", "AuditRefresh", "CurveRecord", "WholeAudit", "audit_record", "join_audits",
+           "read_outcomes", "read_record", "refresh_audit_incremental", "run_audit", "split_record",
+           "store_whole_audit", "whole_record_due"]
 
 STATE_FORMAT = 2  # bump when CellState's layout or meaning changes: stored states are then rebuilt
 _REGIMES = ("all", "inverted", "normal")
@@ -266,17 +268,46 @@ def _seen(con, name: str) -> tuple:  # noqa: ANN001
                           "FROM outcome WHERE curve = ?", [name])
 
 
-def _full_curve(con, cfg: Config, name: str, now, first: str | None = None,  # noqa: ANN001
-                last: str | None = None) -> pd.DataFrame:
-    """Recompute a curve's audit from its whole record (over ``first``..``last`` if given) and store it."""
-    c = cfg.curve(name)
-    seen = _seen(con, name)
-    outcomes = read_outcomes(con, cfg, name)
-    if outcomes.empty:
-        return pd.DataFrame()
+@dataclass
+class CurveRecord:
+    """A curve's current outcomes (:func:`read_outcomes`) as read for a whole-record audit, with
+    ``seen``: (latest realized_at, latest superseded_at, count of current rows) when they were read."""
+
+    curve: str
+    seen: tuple
+    outcomes: pd.DataFrame
+    reason: str = ""
+
+
+@dataclass
+class WholeAudit:
+    """A whole-record audit of one curve, computed and not yet stored: the summary and term-premium
+    rows, the running state of every cell (None for a windowed audit, which stores none) and the
+    data version (the latest ``realized_at`` used)."""
+
+    summary: pd.DataFrame
+    premium: pd.DataFrame
+    states: dict[tuple, tuple[CellState, dict]] | None
+    data_version: object
+
+
+def read_record(con, cfg: Config, name: str) -> CurveRecord:  # noqa: ANN001
+    """The curve's current outcomes for a whole-record audit."""
+    return CurveRecord(name, _seen(con, name), read_outcomes(con, cfg, name))
+
+
+def audit_record(outcomes: pd.DataFrame, c: CurveConfig, now, first: str | None = None,  # noqa: ANN001
+                 last: str | None = None, version: object = None) -> WholeAudit:
+    """The whole-record audit of a curve's outcomes (over as-of ``first``..``last`` if given), stamped
+    ``now`` (store clock, naive UTC) and ``version`` (default: the outcomes' latest ``realized_at``).
+    Pure: no store, so it can run in any process.
+
+    Every figure belongs to one (start, tenor) cell, so the audit of a record split by cells
+    (:func:`split_record`) and put together again (:func:`join_audits`) is the audit of the whole,
+    given the whole record's ``version``."""
     windowed = bool(first or last)
-    summary = _finish_summary(summarize(outcomes, first=first, last=last), outcomes["realized_at"].max(), now,
-                              first, last)
+    version = outcomes["realized_at"].max() if version is None else version
+    summary = _finish_summary(summarize(outcomes, first=first, last=last), version, now, first, last)
     window = outcomes
     if windowed:
         keep = pd.Series(True, index=outcomes.index)
@@ -286,14 +317,59 @@ def _full_curve(con, cfg: Config, name: str, now, first: str | None = None,  # n
             keep &= outcomes["as_of"] <= pd.Timestamp(last)
         window = outcomes.loc[keep]
     premium = term_premium(window, c.premium_window_days)
-    _write_results(con, name, summary, premium, None)
-    if windowed:
+    states = None if windowed else _build_states(outcomes, c.premium_window_days)
+    return WholeAudit(summary, premium, states, version)
+
+
+def split_record(outcomes: pd.DataFrame, parts: int) -> list[pd.DataFrame]:
+    """``outcomes`` (sorted by start, tenor, as-of, as :func:`read_outcomes` gives them) cut between
+    (start, tenor) cells into at most ``parts`` runs of cells of about equal rows, in order."""
+    start = outcomes["start_months"].to_numpy()
+    tenor = outcomes["tenor_months"].to_numpy()
+    n = len(outcomes)
+    cells = np.flatnonzero((np.diff(start) != 0) | (np.diff(tenor) != 0)) + 1  # where each new cell starts
+    if parts <= 1 or not cells.size:
+        return [outcomes]
+    # the cell boundary nearest each equal-rows cut point
+    wanted = n * np.arange(1, parts) / parts
+    cuts = np.unique(cells[np.abs(cells[None, :] - wanted[:, None]).argmin(axis=1)])
+    edges = np.concatenate([[0], cuts, [n]])
+    return [outcomes.iloc[a:b] for a, b in zip(edges[:-1], edges[1:], strict=True)]
+
+
+def join_audits(pieces: list[WholeAudit]) -> WholeAudit:
+    """The audits of a record's runs of cells (:func:`split_record`, in order) as one."""
+    if len(pieces) == 1:
+        return pieces[0]
+
+    def concat(frames: list[pd.DataFrame]) -> pd.DataFrame:
+        kept = [f for f in frames if len(f)] or frames[:1]
+        return pd.concat(kept, ignore_index=True) if len(kept) > 1 else kept[0].reset_index(drop=True)
+
+    states = None if pieces[0].states is None else {k: v for p in pieces for k, v in p.states.items()}
+    return WholeAudit(concat([p.summary for p in pieces]), concat([p.premium for p in pieces]), states,
+                      pieces[0].data_version)
+
+
+def _store_whole(con, name: str, c: CurveConfig, audit: WholeAudit, seen: tuple, now) -> None:  # noqa: ANN001
+    _write_results(con, name, audit.summary, audit.premium, None)
+    if audit.states is None:
         for table in ("audit_state_curve", "audit_state_cell", "audit_state_tail"):
             con.execute(f"DELETE FROM {table} WHERE curve = ?", [name])
     else:
-        _write_state(con, name, c, _build_states(outcomes, c.premium_window_days), seen,
-                     outcomes["realized_at"].max(), now)
-    return summary
+        _write_state(con, name, c, audit.states, seen, audit.data_version, now)
+
+
+def _full_curve(con, cfg: Config, name: str, now, first: str | None = None,  # noqa: ANN001
+                last: str | None = None) -> pd.DataFrame:
+    """Recompute a curve's audit from its whole record (over ``first``..``last`` if given) and store it."""
+    record = read_record(con, cfg, name)
+    if record.outcomes.empty:
+        return pd.DataFrame()
+    c = cfg.curve(name)
+    audit = audit_record(record.outcomes, c, now, first, last)
+    _store_whole(con, name, c, audit, record.seen, now)
+    return audit.summary
 
 
 def _transaction(con, fn, *args):  # noqa: ANN001, ANN202
@@ -362,31 +438,44 @@ def _summary_rows(name: str, states: dict[tuple, tuple[CellState, dict]]) -> pd.
     return out
 
 
-def _refresh_curve(con, cfg: Config, name: str, now) -> AuditRefresh:  # noqa: ANN001, C901
+def _refresh_plan(con, cfg: Config, name: str) -> tuple[str, str, tuple, tuple | None]:  # noqa: ANN001
+    """How a refresh treats the curve: (mode, reason, seen, stored meta row), mode ``unchanged`` (no
+    outcomes), ``full`` (recompute the whole record; reason says why) or ``incremental``."""
     c = cfg.curve(name)
-    w = c.premium_window_days
     # the last column counts cell rows stored without the lag band (before sql/008)
     meta = fetch_one(con, "SELECT state_format, window_days, inversion_pair, seen_realized_at, seen_superseded_at, "
                           "n_current, data_version, (SELECT count(*) FROM audit_state_cell s WHERE s.curve = ? AND "
                           "(s.lag_band IS NULL OR s.lag_cross IS NULL OR len(s.lag_band) = 0)) "
                           "FROM audit_state_curve WHERE curve = ?", [name, name])
     seen = _seen(con, name)
+    if not seen[2]:
+        return "unchanged", "no outcomes", seen, meta
+    if meta is None:
+        return "full", "no stored state", seen, meta
+    fmt, window_days, pair, _, seen_superseded, _, _, older = meta
+    if fmt != STATE_FORMAT or window_days != c.premium_window_days or pair != _inversion_label(c):
+        return "full", "state built for another format, premium window or inversion pair", seen, meta
+    if older:
+        return "full", "state stored in an older layout (without the lag band)", seen, meta
+    if seen[1] is not None and (seen_superseded is None or seen[1] > seen_superseded):
+        return "full", "outcomes superseded since the state was stored", seen, meta
+    return "incremental", "", seen, meta
+
+
+def _refresh_curve(con, cfg: Config, name: str, now) -> AuditRefresh:  # noqa: ANN001, C901
+    c = cfg.curve(name)
+    w = c.premium_window_days
+    mode, reason, seen, meta = _refresh_plan(con, cfg, name)
 
     def full(reason: str) -> AuditRefresh:
         summary = _full_curve(con, cfg, name, now)
         return AuditRefresh(name, "full", summary, reason, int(seen[2] or 0))
 
-    if not seen[2]:
-        return AuditRefresh(name, "unchanged", pd.DataFrame(), "no outcomes")
-    if meta is None:
-        return full("no stored state")
-    fmt, window_days, pair, seen_realized, seen_superseded, n_current, data_version, older = meta
-    if fmt != STATE_FORMAT or window_days != w or pair != _inversion_label(c):
-        return full("state built for another format, premium window or inversion pair")
-    if older:
-        return full("state stored in an older layout (without the lag band)")
-    if seen[1] is not None and (seen_superseded is None or seen[1] > seen_superseded):
-        return full("outcomes superseded since the state was stored")
+    if mode == "unchanged":
+        return AuditRefresh(name, "unchanged", pd.DataFrame(), reason)
+    if mode == "full":
+        return full(reason)
+    _, _, _, seen_realized, _, n_current, data_version, _ = meta
     span = fetch_one(con, "SELECT min(as_of), max(as_of) FROM outcome WHERE curve = ? AND superseded_at IS NULL "
                           "AND realized_at > ?", [name, seen_realized])
     new = read_outcomes(con, cfg, name, "AND o.realized_at > ?", [seen_realized],
@@ -461,6 +550,37 @@ def _refresh_curve(con, cfg: Config, name: str, now) -> AuditRefresh:  # noqa: A
     _write_results(con, name, summary, premium, recompute)
     _write_state(con, name, c, states, seen, version, now, tail_changes)
     return AuditRefresh(name, "incremental", summary, new_outcomes=len(new), recomputed=recompute)
+
+
+def whole_record_due(cfg: Config, name: str) -> CurveRecord | None:
+    """The curve's record when a refresh would recompute it whole (no stored state yet, say, as after
+    a first backfill); None when the refresh has nothing to do or would be incremental.
+
+    With :func:`audit_record` (anywhere) and :func:`store_whole_audit`, this is a refresh in three
+    parts, so that the computation, the costly part, can run in another process."""
+    with writer(cfg.store_path) as con:
+        mode, reason, _, _ = _refresh_plan(con, cfg, name)
+        if mode != "full":
+            return None
+        record = read_record(con, cfg, name)
+    record.reason = reason
+    return record if len(record.outcomes) else None
+
+
+def store_whole_audit(cfg: Config, record: CurveRecord, audit: WholeAudit, now) -> AuditRefresh:  # noqa: ANN001
+    """Store ``audit``, computed from ``record`` and stamped ``now``, in one transaction; if the
+    curve's outcomes changed since the record was read, refresh the curve here instead (as
+    :func:`refresh_audit_incremental` would), so nothing stale is stored."""
+    name = record.curve
+
+    def store(con) -> AuditRefresh:  # noqa: ANN001
+        if _seen(con, name) != record.seen:
+            return _refresh_curve(con, cfg, name, utc_now())
+        _store_whole(con, name, cfg.curve(name), audit, record.seen, now)
+        return AuditRefresh(name, "full", audit.summary, record.reason, int(record.seen[2] or 0))
+
+    with writer(cfg.store_path) as con:
+        return _transaction(con, store)
 
 
 def refresh_audit_incremental(cfg: Config, curve: str | None = None) -> dict[str, AuditRefresh]:

@@ -24,6 +24,8 @@ methods give the same rows either way.
 from __future__ import annotations
 
 import contextlib
+import dataclasses
+import sys
 import time
 import uuid
 from collections.abc import Callable, Iterator
@@ -38,12 +40,13 @@ from prefect.context import FlowRunContext
 from prefect.futures import as_completed
 from prefect.utilities.annotations import quote
 
-from flows import build_step
+from flows import audit_step, build_step
 from flows.daily import _retry_condition, check_quotes, realize_forwards, refresh_audit
 from pipeline.config import Config, CurveConfig, load_config
 from pipeline.forwards import ForwardGrid, ZeroGrid
-from warehouse.connect import one_thread, writer
+from warehouse.connect import held, one_thread, writer
 from warehouse.frames import QuotePanel, read_frame, read_quote_panel
+from warehouse.loads import utc_now
 
 __all__ = [
     "BackfillSummary",
@@ -130,6 +133,24 @@ class ChunkResult:
     reasons: dict[str, int] = field(default_factory=dict)
     seconds: float = 0.0
 
+    def without(self, days: np.ndarray) -> ChunkResult:
+        """The chunk less ``days`` (datetime64[D]): neither tried nor built, so storing it leaves
+        those days as they are. The reasons of the days dropped are kept (they were counted)."""
+        keep = ~np.isin(self.as_of, days)
+        if keep.all():
+            return self
+        built = keep[self.ok]  # the zero rates, forwards and fits hold the built days only
+        zeros = dataclasses.replace(self.zeros, **{k: getattr(self.zeros, k)[built] for k in (
+            "as_of", "maturity_date", "year_fraction", "zero_rate", "zero_rate_cc", "discount_factor")})
+        forwards = dataclasses.replace(self.forwards, **{k: getattr(self.forwards, k)[built] for k in (
+            "as_of", "start_date", "end_date", "forward_rate", "forward_rate_cc")})
+        shape = self.shape
+        if shape is not None and len(shape):
+            shape = shape.loc[~np.isin(shape["as_of"].to_numpy().astype("datetime64[D]"), days)]
+        params = self.params[built] if self.params is not None and len(self.params) else self.params
+        return dataclasses.replace(self, as_of=self.as_of[keep], recorded_at=self.recorded_at[keep],
+                                   ok=self.ok[keep], zeros=zeros, forwards=forwards, shape=shape, params=params)
+
 
 def _due_days(con, name: str, c: CurveConfig, scenario: str, first: str | None, last: str | None,  # noqa: ANN001
               rebuild: bool) -> QuotePanel:
@@ -169,6 +190,15 @@ def plan_chunks(cfg: Config, first: str | None = None, last: str | None = None, 
     return jobs
 
 
+def held_back(cfg: Config) -> dict[str, np.ndarray]:
+    """The days each curve's open reject findings hold back (datetime64[D]), by curve."""
+    with writer(cfg.store_path) as con:
+        held = read_frame(con, "SELECT curve, as_of FROM held_days")
+    days = held["as_of"].to_numpy().astype("datetime64[D]") if len(held) else np.array([], "M8[D]")
+    curves = held["curve"].to_numpy() if len(held) else np.array([], object)
+    return {str(c): days[curves == c] for c in np.unique(curves)}
+
+
 # --- computing (any process, pure) --------------------------------------------------------------
 
 def compute_chunk(job: ChunkJob) -> ChunkResult:
@@ -184,14 +214,20 @@ def compute_chunk(job: ChunkJob) -> ChunkResult:
 
 
 def job_cost(job: ChunkJob) -> int:
-    """Relative work of a chunk: days x tenors, four times over for a par curve (its bootstrap)."""
-    return job.days * len(job.tenors) * (4 if job.config.quote == "par" else 1)
+    """Relative work of a chunk: days x tenors, sixteen times over for a par curve (its bootstrap
+    took 10-20x a zero curve's build of the same size when timed here)."""
+    return job.days * len(job.tenors) * (16 if job.config.quote == "par" else 1)
 
 
 def costliest_first(jobs: list[ChunkJob]) -> list[ChunkJob]:
-    """The chunks in the order they should start: costliest first, so that the slowest curve's
-    chunks do not start last and the workers finish together (longest-processing-time order)."""
-    return sorted(jobs, key=lambda j: (-job_cost(j), j.curve, j.index))
+    """The chunks in the order they should start: curve by curve, the costliest curve first, and
+    within a curve its costliest chunk first. The flow finishes a curve (realisation, audit) as soon
+    as its chunks are stored, so the dearest curve's chunks go first and its finishing overlaps the
+    other curves' computation; within a curve, longest-processing-time order balances the workers."""
+    total: dict[str, int] = {}
+    for j in jobs:
+        total[j.curve] = total.get(j.curve, 0) + job_cost(j)
+    return sorted(jobs, key=lambda j: (-total[j.curve], j.curve, -job_cost(j), j.index))
 
 
 @task(name="compute chunk", cache_policy=NO_CACHE)
@@ -210,15 +246,22 @@ def submit_chunks(jobs: list[ChunkJob]) -> list:
     than a second worker gains (measured by ``benchmarks/bench_daily.py``). On any other runner each
     chunk is a Prefect task.
     """
-    runner = FlowRunContext.get().task_runner
-    if _is_dask(runner):
-        client = runner.client
+    client = _dask_client()
+    if client is not None:
         return [client.submit(compute_chunk, job, pure=False, key=f"afterward-chunk-{job.curve}-{job.index}-"
                               f"{uuid.uuid4().hex[:12]}") for job in jobs]
     return [compute_chunk_task.submit(job) for job in jobs]
 
 
+def _dask_client():  # noqa: ANN202
+    """The Dask client of the flow's task runner, or None when the flow runs on another runner."""
+    runner = FlowRunContext.get().task_runner
+    return runner.client if _is_dask(runner) else None
+
+
 def _is_dask(runner: object) -> bool:
+    if "prefect_dask" not in sys.modules:  # no Dask runner was made; importing it costs ~0.4 s
+        return False
     try:
         from prefect_dask import DaskTaskRunner
     except ImportError:  # pragma: no cover - prefect-dask is a dependency
@@ -253,6 +296,7 @@ class ChunkArrivals:
     futures: list
     stored: set[int] = field(default_factory=set)
     counts: dict[str, dict] = field(default_factory=dict)
+    held: dict[str, np.ndarray] = field(default_factory=dict)  # curve -> days not to store (held back)
 
     @property
     def days_stored(self) -> int:
@@ -325,6 +369,8 @@ def write_chunks(cfg: Config, arrivals: ChunkArrivals) -> list[str]:
                 break
             fetched = time.perf_counter() - t
             k, res = pending[got[0]], got[1]
+            if res.curve in arrivals.held:
+                res = res.without(arrivals.held[res.curve])
             t = time.perf_counter()
             write_chunk(con, cfg, res, version)
             arrivals.stored.add(k)
@@ -342,6 +388,21 @@ def settle_build(cfg: Config, curve: str, first: str | None, last: str | None) -
     """The build step once over the range for ``curve``: withdraws builds of held-back days; builds
     any day left."""
     return build_step.run_build(cfg, curve, first, last)
+
+
+@task(name="read audit record", cache_policy=NO_CACHE, retries=2, retry_condition_fn=_retry_condition,
+      retry_delay_seconds=[1, 4])
+def read_audit_record(cfg: Config, curve: str) -> audit_step.CurveRecord | None:
+    """The curve's outcomes when its audit is due in full (see :func:`flows.audit_step.whole_record_due`)."""
+    return audit_step.whole_record_due(cfg, curve)
+
+
+@task(name="store audit", cache_policy=NO_CACHE, retries=2, retry_condition_fn=_retry_condition,
+      retry_delay_seconds=[1, 4])
+def store_audit(cfg: Config, record: audit_step.CurveRecord, audit: audit_step.WholeAudit,
+                now: object) -> audit_step.AuditRefresh:
+    """Store an audit computed on the cluster (:func:`flows.audit_step.store_whole_audit`)."""
+    return audit_step.store_whole_audit(cfg, record, audit, now)
 
 
 # --- the flow -----------------------------------------------------------------------------------
@@ -394,6 +455,8 @@ def backfill(config_path: str, first: str | None = None, last: str | None = None
     summary = BackfillSummary(first, last)
     summary.curves = {name: _empty_counts() for name in cfg.curves}
     finished: list[str] = []
+    audits: dict[str, tuple] = {}  # curve -> (record, stamp, futures of its audit's parts on the cluster)
+    client = _dask_client()
 
     @contextlib.contextmanager
     def stage(name: str) -> Iterator[None]:
@@ -416,29 +479,61 @@ def backfill(config_path: str, first: str | None = None, last: str | None = None
         summary.realized += realized.realized
         info["realized"] = sum(got["realized"] for got in realized.curves.values())
         with stage("audit"):
-            summary.audited += refresh_audit(cfg, curve=name)
+            record = read_audit_record(cfg, name) if client is not None else None
+            if record is None:
+                summary.audited += refresh_audit(cfg, curve=name)
+            else:
+                # the whole-record audit is the costliest part of finishing a curve and needs no
+                # store: a worker computes it (ahead of the chunks still queued) while this process
+                # goes on storing chunks; it is stored once computed
+                now = utc_now()
+                version = record.outcomes["realized_at"].max()
+                parts = audit_step.split_record(record.outcomes, max(sum(client.nthreads().values()), 1))
+                audits[name] = (record, now, [client.submit(
+                    audit_step.audit_record, data, cfg.curve(name), now, version=version, pure=False, priority=10,
+                    key=f"afterward-audit-{name}-{k}-{uuid.uuid4().hex[:12]}")
+                    for k, data in enumerate(client.scatter(parts))])
+                return
+        done(name)
+
+    def done(name: str) -> None:
         finished.append(name)
         _report("finish", len(finished), len(cfg.curves))
 
-    with stage("check"):
-        check_quotes(cfg, first, last)
-    with stage("plan"):
-        jobs = costliest_first(plan_chunks(cfg, first, last, chunk_days, rebuild))
-    summary.chunks = len(jobs)
-    summary.days_planned = sum(j.days for j in jobs)
-    log.info("backfill %s..%s: %d day(s) due in %d chunk(s)", first, last, summary.days_planned, len(jobs))
-    arrivals = ChunkArrivals(jobs, submit_chunks(jobs))
-    _report("build", 0, arrivals.total_days)
-    # curves with nothing to build are finished while the first chunks compute
-    for name in cfg.curves:
-        if not any(j.curve == name for j in jobs):
-            finish(name)
-    while not arrivals.done:
-        with stage("build"):
-            complete = write_chunks(cfg, quote(arrivals))
-        for name in complete:
-            summary.curves[name] = arrivals.counts[name]
-            finish(name)
+    def store_audits() -> None:
+        for name, (record, now, futures) in audits.items():
+            with stage("audit"):
+                res = audit_step.join_audits([f.result() for f in futures])
+                stored = store_audit(cfg, quote(record), quote(res), now)
+            if stored.mode != "unchanged":
+                summary.audited.append(name)
+            done(name)
+
+    # one open store for the run's many short steps (see warehouse.connect.held)
+    with held(cfg.store_path):
+        # the chunks compute while the checks run: a day the checks now hold back is dropped from
+        # its chunk before it is stored, and a day they release is built by the build step below
+        with stage("plan"):
+            jobs = costliest_first(plan_chunks(cfg, first, last, chunk_days, rebuild))
+        summary.chunks = len(jobs)
+        summary.days_planned = sum(j.days for j in jobs)
+        log.info("backfill %s..%s: %d day(s) due in %d chunk(s)", first, last, summary.days_planned, len(jobs))
+        arrivals = ChunkArrivals(jobs, submit_chunks(jobs))
+        _report("build", 0, arrivals.total_days)
+        with stage("check"):
+            check_quotes(cfg, first, last)
+            arrivals.held = held_back(cfg)
+        # curves with nothing to build are finished while the first chunks compute
+        for name in cfg.curves:
+            if not any(j.curve == name for j in jobs):
+                finish(name)
+        while not arrivals.done:
+            with stage("build"):
+                complete = write_chunks(cfg, quote(arrivals))
+            for name in complete:
+                summary.curves[name] = arrivals.counts[name]
+                finish(name)
+        store_audits()
     if summary.caught_up:
         log.warning("the build step built %d day(s) the chunks did not", summary.caught_up)
     summary.work_seconds = round(time.perf_counter() - t0, 4)
@@ -456,7 +551,7 @@ def _warm_up() -> None:
     """Get a worker ready before the first chunk arrives (while the cluster starts, not in the job's
     time): import the chunk computation's modules and build one small chunk so that the libraries'
     first-call costs are paid too."""
-    from flows import build_step
+    from flows import audit_step, build_step
     from pipeline.config import CurveConfig
     from pipeline.tenors import parse_tenor
 
@@ -471,6 +566,18 @@ def _warm_up() -> None:
                             forward_tenors=tenors("3M", "1Y"))
             build_step.compute_days(days, list(c.tenor_labels), np.full((days.size, len(c.tenors)), 0.03), c,
                                     method)
+    # and one small whole-record audit (its first call imports SciPy's statistics, ~0.4 s cold)
+    n = 300
+    as_of = np.arange(np.datetime64("2001-01-01"), np.datetime64("2001-01-01") + n)
+    spot = 0.03 + 0.002 * np.sin(np.arange(n + 60) / 9.0)
+    forward = spot[:n] + 0.0004 + 0.0003 * np.cos(np.arange(n) / 5.0)
+    outcomes = pd.DataFrame({
+        "curve": "warm-up", "as_of": as_of, "start_months": 3, "tenor_months": 3, "target_date": as_of + 60,
+        "observed_on": as_of + 60, "forward_rate": forward, "realized_rate": spot[60:], "spot_rate": spot[:n],
+        "error_bp": (forward - spot[60:]) * 1e4, "rw_error_bp": (spot[:n] - spot[60:]) * 1e4,
+        "inverted": pd.array(np.arange(n) % 50 < 20, dtype="boolean"),
+        "realized_at": pd.Timestamp("2001-06-01")})
+    audit_step.audit_record(outcomes, c, pd.Timestamp("2001-06-01"))
 
 
 # Dask's nanny sets MALLOC_TRIM_THRESHOLD_=65536 in its workers by default; with it, glibc hands

@@ -18,7 +18,7 @@ import duckdb
 
 from warehouse.schema import apply_schema, schema_version
 
-__all__ = ["StoreError", "StoreLocked", "StoreMissing", "connect", "one_thread", "reader", "writer"]
+__all__ = ["StoreError", "StoreLocked", "StoreMissing", "connect", "held", "one_thread", "reader", "writer"]
 
 
 class StoreError(RuntimeError):
@@ -79,6 +79,9 @@ def connect(path: str | os.PathLike[str], *, read_only: bool = False, wait_secon
     connection's configuration so a query cannot undo it.
     """
     p = Path(path)
+    base = _held.get(p.resolve()) if external_access else None
+    if base is not None:
+        return base.cursor()  # the store this process holds open (see held)
     if not p.exists() and (read_only or not create):
         raise StoreMissing(f"no store at {p} (run 'afterward init' or 'afterward load' first)")
     if p.exists() and p.is_dir():
@@ -111,6 +114,32 @@ def connect(path: str | os.PathLike[str], *, read_only: bool = False, wait_secon
         con.close()
         raise
     return con
+
+
+_held: dict[Path, duckdb.DuckDBPyConnection] = {}
+
+
+@contextmanager
+def held(path: str | os.PathLike[str], **kwargs: object) -> Iterator[duckdb.DuckDBPyConnection]:
+    """Hold the store open, for writing, in this process for the length of the block.
+
+    Every :func:`connect` (so every :func:`writer` and :func:`reader`) of the same store inside the
+    block is then a cursor on the one open database, instead of opening the file again and, at
+    close, writing its log back into it: for a job of many short steps (a backfill) that saves
+    about 0.05-0.1 s a step. The price: no other process can open the store until the block ends.
+    Re-entrant; ``kwargs`` go to :func:`connect` for the first opening.
+    """
+    key = Path(path).resolve()
+    if key in _held:
+        yield _held[key]
+        return
+    con = connect(path, read_only=False, create=True, **kwargs)  # type: ignore[arg-type]
+    _held[key] = con
+    try:
+        yield con
+    finally:
+        del _held[key]
+        con.close()
 
 
 @contextmanager
