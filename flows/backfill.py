@@ -8,10 +8,17 @@ returned as arrays), run in parallel on the flow's task runner: as Prefect tasks
 or on Prefect's Dask task runner (a local or remote cluster) as Dask tasks sent through the
 runner's client (see :func:`submit_chunks` for why not Prefect tasks there). Only the flow's own
 process writes: one writer task stores each chunk as it arrives, one transaction per chunk,
-through the build step's writer. As soon as a curve's last chunk is stored, the flow finishes that
-curve while the others' chunks still compute: the build step once over the range (it withdraws
-the builds of days now held back, and would catch any day a chunk missed), then the curve's
-realisation and audit.
+through the build step's writer. The chunks start computing before the checks run, which saves
+the checks' time when there are workers to spare; a day the checks then hold back (a new reject
+finding) is dropped from its chunk before the chunk is stored (:meth:`ChunkResult.without`). As
+soon as a curve's last chunk is stored, the flow finishes that curve while the others' chunks still
+compute: the build step once over the range (it withdraws the builds of days now held back, and
+builds any day a chunk missed, such as one the checks released), then the curve's realisation and
+audit. On Dask the audit, when its whole record is due (a first backfill), is computed on the
+workers in parts by (start, tenor) cell and stored by this process once they are back.
+
+The flow holds the store open for its whole run (:func:`warehouse.connect.held`): its steps are
+many and short, and each would otherwise open the file and write its log back at close.
 
 Why one writer: DuckDB allows one writing process at a time, and Dask workers without a shared
 Prefect server would each start their own; workers therefore never open the store.
@@ -443,11 +450,12 @@ def backfill(config_path: str, first: str | None = None, last: str | None = None
              rebuild: bool = False) -> BackfillSummary:
     """Build and realise every day of ``[first, last]`` (ISO dates; None: open-ended) in parallel chunks.
 
-    Runs the checks first (a day held back by a reject finding is not built), then the chunks on
-    the flow's task runner with one writer in this process. As soon as every chunk of a curve is
-    stored, that curve is finished while the other curves' chunks are still computing: the build
-    step once over its range, then its realisation and its audit. ``seconds`` adds up each stage's
-    time across the curves ("build" is the writer's, waits for the computation included).
+    Plans and starts the chunks on the flow's task runner, runs the checks meanwhile (a day held
+    back by a reject finding is not stored), then stores the chunks with one writer in this
+    process. As soon as every chunk of a curve is stored, that curve is finished while the other
+    curves' chunks are still computing: the build step once over its range, then its realisation
+    and its audit. ``seconds`` adds up each stage's time across the curves ("build" is the
+    writer's, waits for the computation included; "audit" includes waiting for the workers').
     """
     t0 = time.perf_counter()
     cfg = load_config(config_path)
