@@ -2,7 +2,8 @@
 
 DuckDB allows one read-write process or many read-only processes, never both. So: writers keep their
 transactions short and close promptly; a connection that finds the file locked retries with backoff
-and then fails with :class:`StoreLocked`, whose message names the process holding the lock.
+and then fails with :class:`StoreLocked`, whose message names the process holding the lock. A job of
+many short steps may instead hold the store for its whole run (:func:`held`, the backfill does).
 """
 
 from __future__ import annotations
