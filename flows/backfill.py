@@ -54,6 +54,7 @@ from pipeline.forwards import ForwardGrid, ZeroGrid
 from warehouse.connect import held, one_thread, writer
 from warehouse.frames import QuotePanel, read_frame, read_quote_panel
 from warehouse.loads import utc_now
+from warehouse.run_lock import run_lock
 
 __all__ = [
     "BackfillSummary",
@@ -517,8 +518,8 @@ def backfill(config_path: str, first: str | None = None, last: str | None = None
                 summary.audited.append(name)
             done(name)
 
-    # one open store for the run's many short steps (see warehouse.connect.held)
-    with held(cfg.store_path):
+    # one job at a time per store; one open store for the run's many short steps (warehouse.connect.held)
+    with run_lock(cfg.store_path, "backfill"), held(cfg.store_path):
         # the chunks compute while the checks run: a day the checks now hold back is dropped from
         # its chunk before it is stored, and a day they release is built by the build step below
         with stage("plan"):

@@ -88,14 +88,17 @@ def describe_outcome(o) -> str:  # noqa: ANN001
         return f"{name}: refused: {o.detail}"
     revised = f", revised {o.rows_revised}" if o.rows_revised else ""
     unchanged = f", unchanged {o.rows_unchanged}" if o.rows_unchanged else ""
+    note = f" ({o.detail})" if o.detail else ""
     return (f"{name}: read {o.rows_read}, accepted {o.rows_accepted}{revised}{unchanged}, "
-            f"rejected {o.rows_rejected}")
+            f"rejected {o.rows_rejected}{note}")
 
 
 @app.command()
 def load(
     files: Annotated[list[Path], typer.Argument(help="Rate files (CSV, Parquet, .xlsx).")],
     curve: Annotated[str | None, typer.Option("--curve", help="Load every file into this curve.")] = None,
+    reprocess: Annotated[bool, typer.Option(
+        "--reprocess", help="Load files already loaded into the same curve again, as new loads that say so.")] = False,
 ) -> None:
     """Load rate files, each in one transaction, and report what happened to every row."""
     from flows.steps import load_files
@@ -104,7 +107,8 @@ def load(
     if curve is not None:
         cfg.curve(curve)
     console = _console()
-    outcomes = load_files(cfg, files, curve, on_file=lambda o: console.print(describe_outcome(o), markup=False))
+    outcomes = load_files(cfg, files, curve, reprocess=reprocess,
+                          on_file=lambda o: console.print(describe_outcome(o), markup=False))
     bad = [o for o in outcomes if o.status in ("refused", "missing") or o.rows_rejected]
     if bad:
         raise typer.Exit(1)
@@ -357,8 +361,12 @@ def report(
 def run() -> None:
     """The daily job as one Prefect flow: load the inbox, check, build, realize, audit."""
     from flows.jobs import cli_run
+    from warehouse.run_lock import run_lock
 
-    raise typer.Exit(cli_run(_config_path(), _console()))
+    # taken before Prefect starts, so a second run stops at once rather than after the server's start-up
+    with run_lock(_config().store_path, "run"):
+        rc = cli_run(_config_path(), _console())
+    raise typer.Exit(rc)
 
 
 @app.command()
@@ -371,11 +379,13 @@ def backfill(
 ) -> None:
     """Build and realise a range of dates in parallel chunks, with a progress bar."""
     from flows.jobs import cli_backfill
+    from warehouse.run_lock import run_lock
 
     if workers < 1:
         raise _Exit("--workers must be at least 1", 2)
-    raise typer.Exit(cli_backfill(_config_path(), _day(first, "--from"), _day(last, "--to"), workers, scheduler,
-                                  _console()))
+    with run_lock(_config().store_path, "backfill"):
+        rc = cli_backfill(_config_path(), _day(first, "--from"), _day(last, "--to"), workers, scheduler, _console())
+    raise typer.Exit(rc)
 
 
 @app.command()

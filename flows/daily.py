@@ -43,6 +43,7 @@ from flows.steps import load_files
 from pipeline.config import Config, load_config
 from warehouse.connect import StoreLocked, writer
 from warehouse.loads import LoadOutcome, utc_now
+from warehouse.run_lock import run_lock
 
 __all__ = [
     "COMPLETED",
@@ -388,9 +389,15 @@ def daily(config_path: str, settle_seconds: float = SETTLE_SECONDS,
     a refused file or rejected rows or new reject/warn findings make the status
     "completed with findings" (the flow run itself still completes).
     """
+    cfg = load_config(config_path)
+    # one job at a time per store (held already when the command took it before Prefect started)
+    with run_lock(cfg.store_path, "run"):
+        return _daily(cfg, settle_seconds, patience_seconds)
+
+
+def _daily(cfg: Config, settle_seconds: float, patience_seconds: float) -> DailySummary:
     started_clock = time.perf_counter()
     started = utc_now()
-    cfg = load_config(config_path)
     log = get_run_logger()
     summary = DailySummary()
     seconds = summary.seconds

@@ -63,7 +63,12 @@ def _read(path: Path, cfg: Config, curve: str | None) -> tuple[dict, ReadResult,
     result = read_rate_file(data, path.name, date_format=date_format)
     base = dict(source_file=str(path.resolve()), file_name=path.name, sha256=hashlib.sha256(data).hexdigest(),
                 size_bytes=len(data), curve=routed, layout=result.layout)
-    return base, result, result.error
+    error = result.error
+    if error is None and routed is None and not result.rows["curve"].notna().any():
+        # no glob matched and no row names its curve: refused whole, so the real cause is what the user sees
+        patterns = ", ".join(f"{c.files} ({n})" for n, c in cfg.curves.items())
+        error = f"matches no curve: the name fits none of the files patterns {patterns}; use --curve NAME"
+    return base, result, error
 
 
 def _gx_validator(rows, cfg):  # noqa: ANN001, ANN202 - the RowValidator of pipeline.intake
@@ -128,8 +133,11 @@ def _quiet_reader() -> None:
 
 def load_files(cfg: Config, paths: Iterable[Path], curve: str | None = None,
                on_file: Callable[[LoadOutcome], None] | None = None, chunk: int = 120,
-               read_ahead: bool | None = None) -> list[LoadOutcome]:
+               read_ahead: bool | None = None, reprocess: bool = False) -> list[LoadOutcome]:
     """Load each file in its own transaction; returns one outcome per file, in order.
+
+    ``reprocess`` loads files whose content was already loaded into the same curve once more, as new
+    loads that say so (for a file read under a config since corrected).
 
     Files are read and validated in chunks, then recorded one transaction per file through the one
     writer, so a failure part-way leaves every earlier file committed and the rest untouched. With
@@ -156,7 +164,7 @@ def load_files(cfg: Config, paths: Iterable[Path], curve: str | None = None,
             for items in parts:
                 loader.prefetch([i for i in items if isinstance(i, FileBatch)])
                 for item in items:
-                    outcome = item if isinstance(item, LoadOutcome) else loader.record(item)
+                    outcome = item if isinstance(item, LoadOutcome) else loader.record(item, reprocess)
                     outcomes.append(outcome)
                     if on_file is not None:
                         on_file(outcome)

@@ -1,8 +1,11 @@
 """Transactional loads: one file, one transaction, checksum lineage, versioned quotes.
 
-A file whose checksum was already loaded changes nothing. Within a load, a quote for an existing
-(curve, as_of, tenor) with a different rate supersedes the current version (stamped, kept); one with
-the same rate is counted as unchanged and adds no version. Frames go in through Arrow.
+A file whose content was already loaded into the same curve changes nothing (lineage is per curve
+and checksum; a load that accepted no row does not count, so a file refused or wholly rejected under a
+wrong config can be loaded once the config is fixed, and ``reprocess`` loads the same bytes again).
+Within a load, a quote for an existing (curve, as_of, tenor) with a different rate supersedes the
+current version (stamped, kept); one with the same rate is counted as unchanged and adds no version.
+Frames go in through Arrow.
 
 :class:`Loader` is the one writer's view of the archive for the length of a command: it reads the
 current quotes and the loaded checksums once, keeps them up to date as it records files, and so
@@ -157,7 +160,7 @@ class Loader:
         # reads its own days, not the whole history
         self._cover: dict[str, tuple[int, int]] = {}
         self._tenor_code: dict[str, int] = {}
-        self._loaded: dict[str, int] | None = None
+        self._loaded: dict[tuple[str, str], int] | None = None
         self._last_id: int | None = None
 
     def _next_load_id(self) -> int:
@@ -166,14 +169,21 @@ class Loader:
             self._last_id = int(fetch_one(self.con, "SELECT coalesce(max(load_id), 0) FROM load_log")[0])  # type: ignore[index]
         return self._last_id + 1
 
-    def _loaded_shas(self) -> dict[str, int]:
+    def _loaded_shas(self) -> dict[tuple[str, str], int]:
+        """The first load of each (curve, checksum) that accepted rows: what makes a repeat "already loaded"."""
         if self._loaded is None:
             self._loaded = {
-                sha: int(lid) for sha, lid in self.con.execute(
-                    "SELECT sha256, min(load_id) FROM load_log WHERE status = 'loaded' GROUP BY sha256"
+                (curve or "", sha): int(lid) for curve, sha, lid in self.con.execute(
+                    "SELECT curve, sha256, min(load_id) FROM load_log WHERE status = 'loaded' AND rows_accepted > 0 "
+                    "GROUP BY curve, sha256"
                 ).fetchall()
             }
         return self._loaded
+
+    def _earlier_load(self, sha256: str) -> int | None:
+        """The latest earlier load of the same bytes into any curve (for a reprocess note)."""
+        row = fetch_one(self.con, "SELECT max(load_id) FROM load_log WHERE sha256 = ?", [sha256])
+        return None if row is None or row[0] is None else int(row[0])
 
     def _encode(self, days: np.ndarray, tenors: list[str]) -> list[int]:
         """Integer keys for (day number, tenor): cheap to hash, built without a per-row tuple."""
@@ -227,13 +237,21 @@ class Loader:
                 old[a:z] = [get(k, nan) for k in keys[a:z]]
         return old
 
-    def record(self, batch: FileBatch) -> LoadOutcome:
-        """Record one file in a single transaction. Safe to rerun: a repeat is "already loaded"."""
+    def record(self, batch: FileBatch, reprocess: bool = False) -> LoadOutcome:
+        """Record one file in a single transaction. Safe to rerun: a repeat into the same curve is
+        "already loaded", unless ``reprocess`` (the same bytes read again as a new load that says why)."""
         con = self.con
         loaded = self._loaded_shas()
-        prior = loaded.get(batch.sha256)
-        if prior is not None:
+        curves = tuple(sorted({c for c, _, _ in batch.curve_spans}))
+        lineage = ",".join(curves) or batch.curve or ""
+        prior = loaded.get((lineage, batch.sha256))
+        note = batch.error
+        if prior is not None and not reprocess:
             return LoadOutcome(batch.source_file, "already loaded", prior, detail=f"same content as load {prior}")
+        if reprocess and batch.error is None:
+            earlier = self._earlier_load(batch.sha256) if prior is None else prior
+            note = (f"reprocessed: the same content as load {earlier}, read again on request"
+                    if earlier is not None else None)
         started = utc_now()
         status = "refused" if batch.error is not None else "loaded"
         quotes = batch.quotes
@@ -246,7 +264,6 @@ class Loader:
         write = is_new | changed
         new, revised = int(is_new.sum()), int(changed.sum())
         every = new + revised == n_rows
-        curves = tuple(sorted({c for c, _, _ in batch.curve_spans}))
 
         con.execute("BEGIN TRANSACTION")
         try:
@@ -278,8 +295,8 @@ class Loader:
             con.execute(
                 "INSERT INTO load_log VALUES (?, ?, ?, ?, ?, ?, ?, ?, ?, ?, ?, ?, ?, ?, ?, ?, ?)",
                 [load_id, batch.source_file, batch.file_name, batch.sha256, batch.size_bytes,
-                 ",".join(curves) or batch.curve, batch.layout, started, utc_now(), n_rows + n_rej, n_rows,
-                 revised, n_rows - new - revised, n_rej, status, batch.error, batch.validation_json],
+                 lineage or None, batch.layout, started, utc_now(), n_rows + n_rej, n_rows,
+                 revised, n_rows - new - revised, n_rej, status, note, batch.validation_json],
             )
             con.execute("COMMIT")
         except BaseException:
@@ -292,12 +309,13 @@ class Loader:
         self._last_id = load_id
         if batch.error is not None:
             return LoadOutcome(batch.source_file, "refused", load_id, detail=batch.error)
-        loaded[batch.sha256] = load_id
+        if n_rows and (lineage, batch.sha256) not in loaded:
+            loaded[(lineage, batch.sha256)] = load_id
         if new or revised:
             values, wrote = rates.tolist(), write.tolist()
             for curve, a, z in batch.curve_spans:
                 state = self._current[curve]  # read by _classify before the write
                 state.update((k, v) for k, v, w in zip(keys[a:z], values[a:z], wrote[a:z], strict=True) if w)
         return LoadOutcome(batch.source_file, "loaded", load_id, n_rows + n_rej, n_rows, new, revised,
-                           n_rows - new - revised, n_rej, curves=curves, first_day=batch.first_day,
+                           n_rows - new - revised, n_rej, detail=note, curves=curves, first_day=batch.first_day,
                            last_day=batch.last_day)

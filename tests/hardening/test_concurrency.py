@@ -156,3 +156,51 @@ def test_writer_waits_for_a_reader_then_runs(busy_store):
             reader.wait(timeout=30)
             if reader.stdout is not None:
                 reader.stdout.close()
+
+
+_HOLD_RUN_LOCK = """
+import sys, time
+from warehouse.run_lock import run_lock
+with run_lock(sys.argv[1], "run"):
+    print("held", flush=True)
+    time.sleep(60)
+"""
+
+
+def test_a_second_run_stops_at_once_naming_the_first(tmp_path):
+    # issue 15: two `afterward run` at once: the second reported files it could not find and "completed", exit 0
+    (tmp_path / "afterward.toml").write_text(CONFIG, encoding="utf-8")
+    cfg = load_config(tmp_path / "afterward.toml")
+    inbox = cfg.inbox
+    inbox.mkdir(parents=True, exist_ok=True)
+    m = market("2031-01-01", "2031-01-31", seed=3)
+    days, tenors, rates = m["govt"]
+    write_govt_csv(inbox / "govt_2031-01.csv", days, rates, tenors)
+    first = subprocess.Popen([sys.executable, "-c", _HOLD_RUN_LOCK, str(cfg.store_path)], stdout=subprocess.PIPE,
+                             text=True, env=cli_env())
+    try:
+        assert first.stdout.readline().strip() == "held"
+        for command in ("run", "backfill --from 2031-01-01 --to 2031-01-31"):
+            t = time.perf_counter()
+            proc = subprocess.run([sys.executable, "-m", "flows.cli", *command.split()], cwd=tmp_path,
+                                  env=cli_env(), capture_output=True, text=True, timeout=120)
+            seconds = time.perf_counter() - t
+            assert proc.returncode == 1, proc.stdout + proc.stderr
+            lines = [x for x in proc.stderr.splitlines() if x.strip()]
+            assert len(lines) == 1 and "Traceback" not in proc.stdout + proc.stderr, proc.stderr
+            assert f"afterward run (process {first.pid} on" in lines[0] and "is already running" in lines[0]
+            assert proc.stdout == ""
+            # stopped before Prefect's server start-up (several seconds): at once
+            assert seconds < 6, seconds
+        # the inbox is untouched and nothing was loaded
+        assert (inbox / "govt_2031-01.csv").exists()
+        assert not cfg.store_path.exists() or open_store(cfg.store_path).execute("SELECT count(*) FROM load_log").fetchone() == (0,)
+    finally:
+        first.kill()
+        first.wait()
+        first.stdout.close()
+    # the kernel releases the lock of a killed holder: a new holder takes it at once
+    from warehouse.run_lock import run_lock
+
+    with run_lock(cfg.store_path, "run"):
+        pass

@@ -74,6 +74,51 @@ def test_same_file_twice_is_already_loaded_and_changes_nothing(project):
     assert _q(cfg, "SELECT count(*) FROM loads")[0][0] == 1
 
 
+def test_lineage_is_per_curve_a_file_loaded_into_one_curve_loads_into_another(project):
+    # issue 15: the same bytes loaded with --curve b after curve a used to be skipped as "already loaded"
+    cfg = load_config(project / "afterward.toml")
+    f = _write(project / "rates.csv", "date,tenor,rate\n2031-01-02,1M,0.031\n2031-01-02,1Y,0.033\n")
+    [first] = load_files(cfg, [f], curve="swap")
+    [second] = load_files(cfg, [f], curve="govt")   # govt has no 1M: one row rejected, 1Y accepted
+    assert (first.status, first.rows_accepted) == ("loaded", 2)
+    assert (second.status, second.rows_accepted, second.rows_rejected) == ("loaded", 1, 1)
+    assert _q(cfg, "SELECT curve, tenor FROM quotes ORDER BY ALL") == [("govt", "1Y"), ("swap", "1M"), ("swap", "1Y")]
+    [third] = load_files(cfg, [f], curve="govt")
+    assert (third.status, third.detail) == ("already loaded", f"same content as load {second.load_id}")
+
+
+def test_a_load_that_accepted_nothing_does_not_block_the_same_file_later(project):
+    # issue 15: a file whose every row was rejected (wrong date_format) must be loadable once the config is fixed
+    toml = project / "afterward.toml"
+    toml.write_text(toml.read_text().replace('[curves.govt]\n', '[curves.govt]\ndate_format = "month_first"\n'))
+    f = _write(project / "govt_dm.csv", "date,3M,1Y\n25/01/2031,4.10,4.20\n27/01/2031,4.11,4.21\n")
+    [bad] = load_files(load_config(toml), [f])
+    assert (bad.status, bad.rows_accepted, bad.rows_rejected) == ("loaded", 0, 2)
+    toml.write_text(toml.read_text().replace('date_format = "month_first"', 'date_format = "day_first"'))
+    cfg = load_config(toml)
+    [good] = load_files(cfg, [f])
+    assert (good.status, good.rows_accepted, good.rows_rejected) == ("loaded", 4, 0)
+    assert _q(cfg, "SELECT count(*) FROM quotes")[0][0] == 4
+    # a load that did accept rows blocks a repeat, which --reprocess loads again as a new load that says why
+    [again] = load_files(cfg, [f])
+    assert again.status == "already loaded"
+    [redo] = load_files(cfg, [f], reprocess=True)
+    assert (redo.status, redo.rows_accepted, redo.rows_unchanged, redo.rows_new) == ("loaded", 4, 4, 0)
+    assert redo.detail == f"reprocessed: the same content as load {good.load_id}, read again on request"
+    assert _q(cfg, "SELECT load_id, detail FROM load_log ORDER BY load_id")[-1] == (redo.load_id, redo.detail)
+    assert _q(cfg, "SELECT count(*) FROM quote_history")[0][0] == 4     # same values: no new versions
+
+
+def test_a_file_matching_no_curve_is_refused_and_blocks_nothing(project):
+    # issue 15: it was recorded as loaded with a blank curve, and an identical file for a real curve then skipped
+    cfg = load_config(project / "afterward.toml")
+    stray = _write(project / "stray.csv", JAN)
+    [out] = load_files(cfg, [stray])
+    assert out.status == "refused" and out.detail.startswith("matches no curve")
+    [real] = load_files(cfg, [_write(project / "govt_2031-01.csv", JAN)])
+    assert (real.status, real.rows_accepted) == ("loaded", 14)
+
+
 def test_restatement_supersedes_and_keeps_the_old_version(project):
     cfg = load_config(project / "afterward.toml")
     load_files(cfg, [_write(project / "govt_2031-01.csv", JAN)])
@@ -116,9 +161,13 @@ def test_units_and_routing(project):
     assert out.rows_accepted == 1 and out.rows_rejected == 1    # 7Y is not a swap tenor
     assert _q(cfg, "SELECT curve, tenor, rate FROM quotes") == [("swap", "1M", pytest.approx(0.031))]
     assert "not one of curves.swap.tenors" in _q(cfg, "SELECT reason FROM rejected_rows")[0][0]
+    # a name no curve's pattern fits is refused whole with the real cause (not its rows as bad dates)
     [out] = load_files(cfg, [_write(project / "mystery.csv", JAN)])
-    assert out.rows_accepted == 0 and out.rows_rejected == 14
-    assert "matches no curve" in _q(cfg, "SELECT reason FROM rejected_rows WHERE load_id = 2 LIMIT 1")[0][0]
+    assert out.status == "refused" and out.rows_accepted == 0
+    assert _q(cfg, "SELECT line, reason FROM rejected_rows WHERE load_id = 2") == [
+        (0, "matches no curve: the name fits none of the files patterns govt_*.csv (govt), swap_*.parquet (swap); "
+            "use --curve NAME")]
+    assert _q(cfg, "SELECT status, curve FROM load_log WHERE load_id = 2") == [("refused", None)]
 
 
 def test_unreadable_file_is_refused_and_recorded(project):
