@@ -232,6 +232,9 @@ def check(
     all_days: Annotated[bool, typer.Option("--all", help="Re-check every day, not only new ones.")] = False,
     accept: Annotated[tuple[str, str] | None, typer.Option("--accept", metavar="CURVE DAY",
                                                           help="Override a day's reject findings.")] = None,
+    reason: Annotated[str | None, typer.Option("--reason", metavar="TEXT",
+                                               help="Why the accepted day's quotes are right (needed with --accept).")
+                      ] = None,
 ) -> None:
     """Run the curve-level data checks and show the open findings; exit 1 if any reject is open."""
     from flows.check_step import accept_day, run_checks
@@ -241,10 +244,18 @@ def check(
     if curve is not None:
         cfg.curve(curve)
     console = _console()
+    if accept is None and reason is not None:
+        raise _Exit("--reason goes with --accept CURVE DAY", 2)
     if accept is not None:
         a_curve, a_day = accept
-        n = accept_day(cfg, a_curve, _day(a_day, "--accept") or a_day)
-        console.print(f"accepted {a_curve} {a_day}: {n} reject finding(s) overridden; the day will be built")
+        if reason is None or not reason.strip():
+            raise _Exit("--accept needs --reason TEXT: why the day's quotes are right, kept with the acceptance", 2)
+        cfg.curve(a_curve)
+        n = accept_day(cfg, a_curve, _day(a_day, "--accept") or a_day, reason.strip())
+        if n == 0:
+            raise _Exit(f"{a_curve} {a_day} has no open reject finding; nothing accepted", 1)
+        console.print(f"accepted {a_curve} {a_day}: {n} reject finding(s) overridden until the day's quotes "
+                      "change; the day will be built")
         return
     summary = run_checks(cfg, curve, _day(first, "--from"), _day(last, "--to"), all_days)
     for name, info in summary.curves.items():

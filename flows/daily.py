@@ -37,7 +37,7 @@ from prefect.tasks import exponential_backoff
 
 from flows.audit_step import refresh_audit_incremental, run_audit
 from flows.build_step import BuildSummary, run_build
-from flows.check_step import CheckSummary, run_checks
+from flows.check_step import CheckSummary, note_late_curves, run_checks
 from flows.realize_step import RealizeSummary, run_realize
 from flows.steps import load_files
 from pipeline.config import Config, load_config
@@ -324,6 +324,14 @@ def check_quotes(cfg: Config, first: str | None = None, last: str | None = None)
     return run_checks(cfg, None, first, last)
 
 
+@task(name="late curves", cache_policy=NO_CACHE, retries=2,
+      retry_delay_seconds=exponential_backoff(backoff_factor=1), retry_condition_fn=_retry_condition)
+def note_late(cfg: Config) -> int:
+    """A ``late_curve`` finding for each curve whose last due day has no curve yet
+    (:func:`flows.check_step.note_late_curves`)."""
+    return note_late_curves(cfg)
+
+
 @task(name="build", cache_policy=NO_CACHE, retries=2, retry_delay_seconds=exponential_backoff(backoff_factor=1),
       retry_condition_fn=_retry_condition)
 def build_days(cfg: Config, first: str | None = None, last: str | None = None) -> BuildSummary:
@@ -415,6 +423,7 @@ def _daily(cfg: Config, settle_seconds: float, patience_seconds: float) -> Daily
     summary.files = [_file_record(o, m["moved_to"]) for o, m in zip(outcomes, moves, strict=True)]
 
     checks = timed("check", check_quotes, cfg)
+    timed("late curves", note_late, cfg)
     built = timed("build", build_days, cfg)
     realized = timed("realize", realize_forwards, cfg)
     audited = timed("audit", refresh_audit, cfg)

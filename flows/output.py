@@ -139,7 +139,7 @@ def print_findings(cfg, console, curve: str | None = None, first: str | None = N
     console.print(t)
     if rejects:
         console.print(f"{rejects} reject finding(s) open: those days are kept out of build until restated "
-                      "or accepted (afterward check --accept CURVE DAY)")
+                      "or accepted (afterward check --accept CURVE DAY --reason TEXT)")
     return int(rejects)
 
 

@@ -196,8 +196,10 @@ def gather_report(cfg: Config, curve: str | None = None, first: str | None = Non
             f"FROM built_day WHERE scenario = 'official' AND curve IN ({placeholders}){w} "
             "GROUP BY curve, method, code_version ORDER BY curve, first_day", [*names, *wp])
         findings = read_frame(
-            con, f"SELECT curve, as_of, check_name, severity, tenor, detail FROM findings WHERE curve IN "
-                 f"({placeholders}){w} ORDER BY curve, as_of", [*names, *wp])
+            # open ones only (a finding on a day with an acceptance in force is not open): the count that
+            # `status` and `check` show
+            con, f"SELECT curve, as_of, check_name, severity, tenor, detail FROM findings WHERE state = 'open' "
+                 f"AND curve IN ({placeholders}){w} ORDER BY curve, as_of", [*names, *wp])
         held = read_frame(
             con, f"SELECT curve, as_of, check_name, severity, tenor, detail FROM open_findings WHERE severity = "
                  f"'reject' AND curve IN ({placeholders}){w} ORDER BY curve, as_of", [*names, *wp])

@@ -7,6 +7,7 @@ allowed values; nothing downstream sees an unchecked setting.
 from __future__ import annotations
 
 import os
+import re
 import tomllib
 from dataclasses import dataclass, field
 from pathlib import Path
@@ -41,7 +42,7 @@ DATE_FORMATS = ("iso", "day_first", "month_first")
 SEVERITIES = ("reject", "warn", "info")
 CHECK_NAMES = (
     "unparseable", "out_of_range", "duplicate", "missing_day", "missing_tenor", "stale_curve",
-    "jump", "inversion", "negative_forward", "non_monotone_discount",
+    "jump", "inversion", "negative_forward", "non_monotone_discount", "late_curve",
 )
 DEFAULT_SEVERITY = {
     "unparseable": "reject",
@@ -54,6 +55,7 @@ DEFAULT_SEVERITY = {
     "inversion": "info",
     "negative_forward": "warn",
     "non_monotone_discount": "warn",
+    "late_curve": "warn",
 }
 _FREQ = {"continuous": None, "simple": 0, "annual": 1, "semiannual": 2, "quarterly": 4, "monthly": 12}
 
@@ -91,6 +93,7 @@ class CurveConfig:
     inversion_pairs: tuple[tuple[Tenor, Tenor], ...] = ()
     severity: dict[str, str] = field(default_factory=lambda: dict(DEFAULT_SEVERITY))
     premium_window_days: int = 250
+    late_after: str = "18:00"          # HH:MM in the schedule's time zone: a day's curve is due by then
 
     @property
     def frequency_per_year(self) -> int | None:
@@ -279,7 +282,11 @@ def _parse_curve(name: str, t: dict[str, Any], base: Path) -> CurveConfig:
     chk = t.get("checks", {})
     if not isinstance(chk, dict):
         raise ConfigError(f"{w}checks must be a table")
-    _check_keys(chk, {"jump_bp", "inversion_pairs", "severity", "stale_days", "outlier_mads"}, f"{w}checks.")
+    _check_keys(chk, {"jump_bp", "inversion_pairs", "severity", "stale_days", "outlier_mads", "late_after"},
+                f"{w}checks.")
+    late_after = chk.get("late_after", "18:00")
+    if not (isinstance(late_after, str) and re.fullmatch(r"([01]\d|2[0-3]):[0-5]\d", late_after)):
+        raise ConfigError(f"{w}checks.late_after = {late_after!r} is not a time of day HH:MM (e.g. \"18:00\")")
     jump_bp = float(_number(chk, "jump_bp", 75, f"{w}checks.", minimum=0))
     stale_days = _number(chk, "stale_days", 5, f"{w}checks.", integer=True, minimum=2)
     outlier_mads = float(_number(chk, "outlier_mads", 8, f"{w}checks.", minimum=1))
@@ -329,6 +336,7 @@ def _parse_curve(name: str, t: dict[str, Any], base: Path) -> CurveConfig:
         forward_tenors=fwd_tenors,
         tolerance_days=tolerance,
         jump_bp=jump_bp,
+        late_after=late_after,
         outlier_mads=outlier_mads,
         stale_days=stale_days,
         inversion_pairs=tuple(pairs),

@@ -256,7 +256,7 @@ def test_units_defect_day_is_held_out_of_build(demo_done):
 def test_accepting_the_units_day_lets_build_take_it(demo_done, tmp_path):
     units = _defect(demo_done, "wrong_units").date
     copy = clone_project(demo_done, tmp_path / "accepted")
-    n = accept_day(copy.cfg, "govt", str(units), note="checked against the issuer's release")
+    n = accept_day(copy.cfg, "govt", str(units), "checked against the issuer's release")
     assert n == 1
     acc = copy.sql("SELECT * FROM acceptance")
     assert len(acc) == 1 and acc.iloc[0]["accepted_by"] and pd.notna(acc.iloc[0]["accepted_at"])

@@ -193,7 +193,7 @@ def test_a_day_released_from_a_hold_is_built_although_its_quotes_are_old(built, 
     assert (s.curves["zc"]["days_built"], s.curves["zc"]["held"]) == (1, 1)
     _write_month(p, "zc_mar.csv", _days("2032-03-01", "2032-03-01"), _rates(1, 10))
     assert run_build(p.cfg).curves["zc"]["days_built"] == 1  # built since: the held day's quotes are older
-    accept_day(p.cfg, "zc", "2032-02-03")
+    accept_day(p.cfg, "zc", "2032-02-03", "checked against the source")
     s = run_build(p.cfg)
     assert s.curves["zc"]["days_built"] == 1
     assert p.value("SELECT count(*) FROM forwards WHERE as_of = DATE '2032-02-03'") == 9
