@@ -49,6 +49,7 @@ from prefect.utilities.annotations import quote
 
 from flows import audit_step, build_step
 from flows.daily import _retry_condition, check_quotes, realize_forwards, refresh_audit
+from pipeline.audit.refresh import WholeAudit, audit_record, join_audits, split_record
 from pipeline.config import Config, CurveConfig, load_config
 from pipeline.forwards import ForwardGrid, ZeroGrid
 from warehouse.connect import held, one_thread, writer
@@ -407,7 +408,7 @@ def read_audit_record(cfg: Config, curve: str) -> audit_step.CurveRecord | None:
 
 @task(name="store audit", cache_policy=NO_CACHE, retries=2, retry_condition_fn=_retry_condition,
       retry_delay_seconds=[1, 4])
-def store_audit(cfg: Config, record: audit_step.CurveRecord, audit: audit_step.WholeAudit,
+def store_audit(cfg: Config, record: audit_step.CurveRecord, audit: WholeAudit,
                 now: object) -> audit_step.AuditRefresh:
     """Store an audit computed on the cluster (:func:`flows.audit_step.store_whole_audit`)."""
     return audit_step.store_whole_audit(cfg, record, audit, now)
@@ -497,9 +498,10 @@ def backfill(config_path: str, first: str | None = None, last: str | None = None
                 # goes on storing chunks; it is stored once computed
                 now = utc_now()
                 version = record.outcomes["realized_at"].max()
-                parts = audit_step.split_record(record.outcomes, max(sum(client.nthreads().values()), 1))
+                parts = split_record(record.outcomes, max(sum(client.nthreads().values()), 1))
                 audits[name] = (record, now, [client.submit(
-                    audit_step.audit_record, data, cfg.curve(name), now, version=version, pure=False, priority=10,
+                    audit_record, data, cfg.curve(name).premium_window_days, now, version=version, pure=False,
+                    priority=10,
                     key=f"afterward-audit-{name}-{k}-{uuid.uuid4().hex[:12]}")
                     for k, data in enumerate(client.scatter(parts))])
                 return
@@ -512,7 +514,7 @@ def backfill(config_path: str, first: str | None = None, last: str | None = None
     def store_audits() -> None:
         for name, (record, now, futures) in audits.items():
             with stage("audit"):
-                res = audit_step.join_audits([f.result() for f in futures])
+                res = join_audits([f.result() for f in futures])
                 stored = store_audit(cfg, quote(record), quote(res), now)
             if stored.mode != "unchanged":
                 summary.audited.append(name)
@@ -560,7 +562,7 @@ def _warm_up() -> None:
     """Get a worker ready before the first chunk arrives (while the cluster starts, not in the job's
     time): import the chunk computation's modules and build one small chunk so that the libraries'
     first-call costs are paid too."""
-    from flows import audit_step, build_step
+    from flows import build_step
     from pipeline.config import CurveConfig
     from pipeline.tenors import parse_tenor
 
@@ -586,7 +588,7 @@ def _warm_up() -> None:
         "error_bp": (forward - spot[60:]) * 1e4, "rw_error_bp": (spot[:n] - spot[60:]) * 1e4,
         "inverted": pd.array(np.arange(n) % 50 < 20, dtype="boolean"),
         "realized_at": pd.Timestamp("2001-06-01")})
-    audit_step.audit_record(outcomes, c, pd.Timestamp("2001-06-01"))
+    audit_record(outcomes, c.premium_window_days, pd.Timestamp("2001-06-01"))
 
 
 # Dask's nanny sets MALLOC_TRIM_THRESHOLD_=65536 in its workers by default; with it, glibc hands

@@ -19,7 +19,8 @@ import duckdb
 
 from warehouse.schema import apply_schema, schema_version
 
-__all__ = ["StoreError", "StoreLocked", "StoreMissing", "connect", "held", "one_thread", "reader", "writer"]
+__all__ = ["StoreError", "StoreLocked", "StoreMissing", "connect", "held", "one_thread", "reader", "transaction",
+           "writer"]
 
 
 class StoreError(RuntimeError):
@@ -161,6 +162,21 @@ def reader(path: str | os.PathLike[str], **kwargs: object) -> Iterator[duckdb.Du
         yield con
     finally:
         con.close()
+
+
+@contextmanager
+def transaction(con: duckdb.DuckDBPyConnection) -> Iterator[duckdb.DuckDBPyConnection]:
+    """One transaction for the block: committed at its end, rolled back if it raises (even on Ctrl-C)."""
+    con.execute("BEGIN TRANSACTION")
+    try:
+        yield con
+    except BaseException:
+        try:
+            con.execute("ROLLBACK")
+        except duckdb.Error:
+            pass        # the failure that got us here is the one to report
+        raise
+    con.execute("COMMIT")
 
 
 @contextmanager

@@ -7,7 +7,7 @@ import numpy as np
 import pandas as pd
 import pytest
 
-from flows.audit_step import audit_record, join_audits, split_record
+from pipeline.audit.refresh import audit_record, join_audits, split_record
 from pipeline.config import CurveConfig
 from pipeline.tenors import parse_tenor
 from warehouse.connect import connect, held, reader, writer
@@ -44,7 +44,7 @@ def test_an_audit_in_parts_by_cell_joins_to_the_audit_of_the_whole(parts):
     # here only the cutting and joining is under test, so equality is exact
     record = outcomes([(3, 3), (3, 12), (12, 3), (12, 12), (24, 60)])
     now = pd.Timestamp("2013-01-01")
-    whole = audit_record(record, curve(), now)
+    whole = audit_record(record, curve().premium_window_days, now)
     pieces = split_record(record, parts)
     assert 1 < len(pieces) <= parts
     assert sum(len(p) for p in pieces) == len(record)
@@ -52,7 +52,8 @@ def test_an_audit_in_parts_by_cell_joins_to_the_audit_of_the_whole(parts):
         cells = set(zip(p["start_months"], p["tenor_months"], strict=True))
         others = [set(zip(q["start_months"], q["tenor_months"], strict=True)) for q in pieces if q is not p]
         assert all(not cells & o for o in others)
-    joined = join_audits([audit_record(p, curve(), now, version=record["realized_at"].max()) for p in pieces])
+    version = record["realized_at"].max()
+    joined = join_audits([audit_record(p, curve().premium_window_days, now, version=version) for p in pieces])
     pd.testing.assert_frame_equal(joined.summary, whole.summary, check_exact=True)
     pd.testing.assert_frame_equal(joined.premium, whole.premium, check_exact=True)
     assert joined.data_version == whole.data_version

@@ -29,7 +29,7 @@ from pipeline.audit import (
     term_premium,
     verdict,
 )
-from pipeline.audit_stats import bartlett_long_run, diebold_mariano, hac_mean, rolling_mean_hac_se
+from pipeline.audit.hac import bartlett_long_run, diebold_mariano, hac_mean, rolling_mean_hac_se
 from pipeline.dates import BusinessCalendar, as_days
 
 CAL = BusinessCalendar.of()
@@ -389,10 +389,10 @@ def test_as_days_round_trip_of_outputs():
     assert as_days(s["first_as_of"].to_numpy())[0] == as_days(o["as_of"].to_numpy())[0]
 
 
-# ---------------------------------------------------------------- incremental state (pipeline.audit_state)
+# ---------------------------------------------------------------- incremental state (pipeline.audit.state)
 # Reference: summarize / term_premium / overlap_horizon over the whole record (themselves checked
 # against statsmodels above), and statsmodels directly where named.
-from pipeline.audit_state import (  # noqa: E402
+from pipeline.audit.state import (  # noqa: E402
     BAND,
     LAG_BAND,
     TAIL_COLUMNS,

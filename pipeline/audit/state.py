@@ -52,8 +52,8 @@ from typing import Any
 import numpy as np
 from scipy import special
 
-from pipeline.audit import MIN_OBS, TIE
-from pipeline.audit_stats import hln_factor, rolling_mean_hac_se
+from pipeline.audit.hac import hln_factor, rolling_mean_hac_se
+from pipeline.audit.statistics import MIN_OBS, TIE
 from pipeline.dates import as_days
 
 __all__ = [
