@@ -1,7 +1,7 @@
 """Monotone convex (Hagan & West 2006): published values and the method's properties.
 
-References: NAG e01ce/e01cf example (REFERENCES item 11), Dehlbom's thesis (item 12), Hagan & West's
-example curve (item 13, memory) and the construction itself (item 14).
+References: NAG e01ce/e01cf example (tests/REFERENCES.md #11), Dehlbom's thesis (#12), Hagan & West's
+example curve (#13, memory) and the construction itself (#14).
 """
 
 from __future__ import annotations
@@ -14,19 +14,19 @@ from pipeline.curves.monotone_convex import MonotoneConvexBlock, sector_g
 
 AS_OF = np.array(["2030-01-02"], dtype="datetime64[D]")
 
-# REFERENCES item 11 (NAG e01ce/e01cf example program; seen): knots and rates in percent
+# tests/REFERENCES.md #11 (NAG e01ce/e01cf example program; seen): knots and rates in percent
 NAG_T = [10.0, 20.0, 30.0, 40.0, 50.0]
 NAG_R = [3.0, 4.0, 4.7, 6.0, 6.0]
 NAG_EXPECTED = [  # t, rate %, forward %
     (0, 2.500, 2.500), (1, 2.505, 2.515), (2, 2.520, 2.560), (3, 2.545, 2.635),
     (4, 2.580, 2.740), (5, 2.625, 2.875), (6, 2.680, 3.040),
 ]
-# REFERENCES item 12 (Dehlbom 2020, Uppsala thesis; seen): discount factors at t = 1..5
+# tests/REFERENCES.md #12 (Dehlbom 2020, Uppsala thesis; seen): discount factors at t = 1..5
 DEHLBOM_T = [1.0, 2.0, 3.0, 4.0, 5.0]
 DEHLBOM_D = [0.98, 0.955, 0.92, 0.88, 0.83]
 DEHLBOM_DISCRETE = [0.0202, 0.0258, 0.0373, 0.0445, 0.0585]
 DEHLBOM_FORWARDS = [0.0188, 0.0230, 0.0316, 0.0409, 0.0515, 0.0620]  # at t = 0..5
-# REFERENCES item 13 (Hagan & West 2006 example curve; memory): use for properties only
+# tests/REFERENCES.md #13 (Hagan & West 2006 example curve; memory): use for properties only
 HW_T = [0.1, 1.0, 4.0, 9.0, 20.0, 30.0]
 HW_R = [0.081, 0.070, 0.044, 0.070, 0.040, 0.030]
 
@@ -37,7 +37,7 @@ def _curve(times, zeros, method="monotone_convex"):
 
 @pytest.mark.parametrize(("t", "rate", "forward"), NAG_EXPECTED, ids=[f"t={t}" for t, _, _ in NAG_EXPECTED])
 def test_nag_example_first_interval(t, rate, forward):
-    # source: REFERENCES item 11, NAG e01ce/e01cf example; exact on [0, 10] (3 decimals, in percent)
+    # source: tests/REFERENCES.md #11, NAG e01ce/e01cf example; exact on [0, 10] (3 decimals, in percent)
     c = _curve(NAG_T, NAG_R)  # the method is scale-free: percent in, percent out
     tt = np.array([[float(t)]])
     r = float(c.zero_rate(tt)[0, 0])
@@ -47,7 +47,7 @@ def test_nag_example_first_interval(t, rate, forward):
 
 
 def test_dehlbom_discrete_and_instantaneous_forwards():
-    # source: REFERENCES item 12, Dehlbom (2020), 4 decimals
+    # source: tests/REFERENCES.md #12, Dehlbom (2020), 4 decimals
     zeros = -np.log(DEHLBOM_D) / np.array(DEHLBOM_T)
     block = MonotoneConvexBlock(np.array([DEHLBOM_T]), np.array([zeros]))
     np.testing.assert_allclose(block.discrete_forwards[0], DEHLBOM_DISCRETE, atol=5e-5)
@@ -59,7 +59,7 @@ def test_dehlbom_discrete_and_instantaneous_forwards():
 
 
 def test_hagan_west_curve_reproduces_nodes_and_discrete_forwards():
-    # source: REFERENCES items 13-14: integral of f over each interval = the discrete forward
+    # source: tests/REFERENCES.md #13, #14: integral of f over each interval = the discrete forward
     c = _curve(HW_T, HW_R)
     t = np.array([HW_T])
     z = c.zero_rate(t)[0]
@@ -107,7 +107,7 @@ def test_hagan_west_forwards_positive_and_continuous_where_linear_zero_kinks():
 ], ids=["i-neg", "i-pos", "ii-neg", "ii-pos", "iii-pos", "iii-neg", "iv-pos", "iv-neg", "zero",
         "near-degenerate", "iv-edge"])
 def test_sector_g_ends_and_zero_mean(g0, g1):
-    # source: REFERENCES item 14: g(0) = g0, g(1) = g1 and the integral over [0, 1] is zero
+    # source: tests/REFERENCES.md #14: g(0) = g0, g(1) = g1 and the integral over [0, 1] is zero
     edges = np.linspace(0.0, 1.0, 400001)
     mid = (edges[1:] + edges[:-1]) / 2  # midpoint rule: g may jump at x = 0 in limiting sectors
     g_end, _ = sector_g(np.array([g0, g0]), np.array([g1, g1]), np.array([0.0, 1.0]))
