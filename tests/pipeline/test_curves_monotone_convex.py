@@ -125,3 +125,86 @@ def test_flat_forward_after_last_node():
     c = _curve(HW_T, HW_R)
     f = c.instantaneous_forward(np.array([[30.0, 35.0, 80.0]]))[0]
     assert f[0] == f[1] == f[2]
+
+
+# --- every sector of g, against the paper's construction written out independently ----------------
+#
+# tests/REFERENCES.md #14 (Hagan & West 2006, the monotone convex method; the sector formulas from
+# memory of the paper, re-derived from its conditions: g(0) = g0, g(1) = g1, zero integral over the
+# interval). Written here in plain numpy, not from pipeline/curves/monotone_convex.py.
+
+def hw_reference_forward(times, zeros, t):
+    """Instantaneous forward f(t) of the monotone convex method on knots 0 < t_1 < ... < t_n with
+    continuous zero rates r_i (no positivity collar: the test checks it would not act).
+    Returns (f(t), sector of each t, knot forwards f_0..f_n, discrete forwards)."""
+    knots = np.concatenate([[0.0], times])
+    h = np.diff(knots)
+    fd = np.diff(knots * np.concatenate([[0.0], zeros])) / h            # f^d_i on [t_{i-1}, t_i]
+    n = len(times)
+    f = np.empty(n + 1)
+    f[1:n] = (h[:-1] * fd[1:] + h[1:] * fd[:-1]) / (h[:-1] + h[1:])    # interior knots
+    f[0] = fd[0] - 0.5 * (f[1] - fd[0])
+    f[n] = fd[-1] - 0.5 * (f[n - 1] - fd[-1])
+    i = np.clip(np.searchsorted(knots, t, side="right") - 1, 0, n - 1)
+    x = (t - knots[i]) / h[i]
+    g0, g1 = f[i] - fd[i], f[i + 1] - fd[i]
+    g = np.zeros_like(t)
+    sector = np.full(t.shape, "zero", dtype=object)
+    for k in range(len(t)):
+        a, b, xx = g0[k], g1[k], x[k]
+        if a == 0 and b == 0:
+            continue
+        if (a < 0 and -a / 2 <= b <= -2 * a) or (a > 0 and -2 * a <= b <= -a / 2):
+            sector[k] = "i"       # the quadratic through g0 and g1 with zero integral
+            g[k] = a * (1 - 4 * xx + 3 * xx ** 2) + b * (-2 * xx + 3 * xx ** 2)
+        elif (a < 0 and b > -2 * a) or (a > 0 and b < -2 * a):
+            sector[k] = "ii"      # flat at g0, then a quadratic up (down) to g1
+            eta = (b + 2 * a) / (b - a)
+            g[k] = a if xx <= eta else a + (b - a) * ((xx - eta) / (1 - eta)) ** 2
+        elif (a > 0 and -a / 2 < b < 0) or (a < 0 and 0 < b < -a / 2):
+            sector[k] = "iii"     # a quadratic from g0 down (up) to g1, then flat at g1
+            eta = 3 * b / (b - a)
+            g[k] = b + (a - b) * ((eta - xx) / eta) ** 2 if xx < eta else b
+        else:
+            sector[k] = "iv"      # g0 and g1 of one sign: two quadratics meeting at a minimum (maximum) A
+            eta = b / (b + a)
+            A = -a * b / (a + b)
+            g[k] = A + (a - A) * ((eta - xx) / eta) ** 2 if xx <= eta else A + (b - A) * ((xx - eta) / (1 - eta)) ** 2
+    return fd[i] + g, sector, f, fd
+
+
+# knots chosen so that both signs of every sector occur across the intervals of the four days: two
+# given by zero rates, two by discrete forwards with a sharp step (sector ii)
+SECTOR_T = [0.5, 1.0, 2.0, 3.0, 5.0, 7.0, 10.0, 15.0, 20.0, 30.0]
+_STEP_FORWARDS = [[0.030, 0.031, 0.050, 0.049, 0.030, 0.029, 0.035, 0.036, 0.034, 0.050],
+                  [0.050, 0.049, 0.030, 0.031, 0.050, 0.036, 0.046, 0.040, 0.041, 0.038]]
+SECTOR_ZEROS = [
+    [0.030, 0.034, 0.031, 0.036, 0.040, 0.039, 0.045, 0.041, 0.047, 0.044],
+    [0.050, 0.046, 0.047, 0.040, 0.041, 0.045, 0.043, 0.049, 0.046, 0.052],
+    *(list(np.cumsum(np.array(fd) * np.diff([0.0, *SECTOR_T])) / np.array(SECTOR_T)) for fd in _STEP_FORWARDS),
+]
+
+
+def test_every_sector_matches_the_paper_construction_on_every_interval():
+    zeros = np.array(SECTOR_ZEROS)
+    n_days = len(zeros)
+    times = np.tile(SECTOR_T, (n_days, 1))
+    as_of = np.array(["2030-01-02", "2030-01-03", "2030-01-04", "2030-01-07"], dtype="datetime64[D]")
+    c = curves_from_nodes(as_of, times, zeros, "monotone_convex")
+    seen = set()
+    for day in range(n_days):
+        # 200 points inside each interval, the knots themselves excluded
+        knots = np.concatenate([[0.0], times[day]])
+        u = (np.arange(200) + 0.5) / 200
+        t = (knots[:-1, None] + np.diff(knots)[:, None] * u[None, :]).ravel()
+        want, sector, f, fd = hw_reference_forward(times[day], zeros[day], t)
+        # the positivity collar (f_0 in [0, 2 f^d_1], f_i in [0, 2 min(f^d_i, f^d_i+1)], f_n in [0, 2 f^d_n])
+        # would not act on these knots, so the plain construction is the whole method here
+        assert fd.min() > 0 and f.min() > 0
+        assert f[0] <= 2 * fd[0] and f[-1] <= 2 * fd[-1] and np.all(f[1:-1] <= 2 * np.minimum(fd[:-1], fd[1:]))
+        got = c.instantaneous_forward(np.tile(t, (n_days, 1)))[day]
+        np.testing.assert_allclose(got, want, rtol=0, atol=1e-12)
+        seen |= {(s, np.sign(g0)) for s, g0 in zip(sector, np.repeat(f[:-1] - fd, 200), strict=True)}
+    # every sector, with g0 of both signs, occurred
+    assert {s for s, _ in seen} == {"i", "ii", "iii", "iv"}
+    assert seen >= {(s, sgn) for s in ("i", "ii", "iii", "iv") for sgn in (-1.0, 1.0)}, sorted(seen)
