@@ -149,14 +149,36 @@ def test_queries_and_files_inside_are_allowed(project, capsys, query):
     code, out, err = _sql(project, capsys, query.format(proj=project), "--format", "csv")
     assert code == 0, err
     assert err == ""
+    rows = _csv_rows(out)
+    assert len(rows) >= 2 and rows[0], out   # a header and at least one row came back
+    if rows[0] == ["n"]:
+        # the counts as an independent reader sees them: the csv module on the inbox file, a plain
+        # listing of the store's folder, DuckDB opened read-only on the store
+        if "read_csv" in query:
+            want = len(list(csv.reader(io.StringIO((project / "inbox" / "govt_2031-01.csv").read_text())))) - 1
+        elif "glob" in query:
+            want = sum(1 for p in project.iterdir() if p.is_file())
+        else:
+            import duckdb
+
+            con = duckdb.connect(str(project / "store.duckdb"), read_only=True)
+            try:
+                want = con.execute("SELECT count(*) FROM quotes").fetchone()[0]  # type: ignore[index]
+            finally:
+                con.close()
+        assert int(rows[1][0]) == want, (query, out)
 
 
 def test_allow_files_reads_outside_but_still_writes_nothing(project, capsys):
     secret = project.parent / "proj-outside" / "secret.csv"
     code, out, err = _sql(project, capsys, f"SELECT * FROM read_csv('{secret}')", "--format", "csv", "--allow-files")
     assert code == 0 and out.splitlines() == ["a,b", "1,2"], err
-    code, out, err = _sql(project, capsys, "SELECT * FROM read_text('/etc/hostname')", "--allow-files")
-    assert code == 0
+    hostname = Path("/etc/hostname")
+    code, out, err = _sql(project, capsys, f"SELECT content FROM read_text('{hostname}')", "--format", "csv",
+                          "--allow-files")
+    assert code == 0, err
+    # the file's text as Python reads it (the first line: a host name is one line)
+    assert hostname.read_text().strip() in out
 
 
 def _csv_rows(text: str) -> list[list[str]]:
