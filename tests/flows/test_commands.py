@@ -93,6 +93,7 @@ def test_realize_command_prints_the_counts_and_stores_the_outcomes(tmp_path):
 
 # --- backfill --------------------------------------------------------------------------------------
 
+@pytest.mark.slow  # a Prefect start-up in its own process: 25-40 s here
 def test_backfill_command_builds_exactly_the_days_of_its_range(tmp_path):
     p = make_project(tmp_path / "flat", FLAT_TOML)
     levels = flat_levels()
@@ -120,6 +121,7 @@ def test_backfill_command_builds_exactly_the_days_of_its_range(tmp_path):
 
 # --- a daily run that fails part-way ---------------------------------------------------------------
 
+@pytest.mark.slow  # two Prefect start-ups: 40-85 s here
 def test_run_that_fails_part_way_keeps_the_loaded_files_and_the_next_run_carries_on(tmp_path):
     """The inbox's files load, then filing them away fails (the `loaded` folder's parent is a plain
     file): the run exits 1 with one line, the loads stay committed, nothing was built, the files are
