@@ -1,6 +1,6 @@
 """Par-yield bootstrap: published worked examples, and every input par bond repricing to par.
 
-References: REFERENCES items 6-10 (Hull; CFA curriculum via Bodie, Kane & Marcus), and QuantLib's
+References: tests/REFERENCES.md #6-#10 (Hull; CFA curriculum via Bodie, Kane & Marcus), and QuantLib's
 ``Schedule`` (backward generation from the unadjusted maturity, ``ModifiedFollowing``) as the
 independent source of coupon dates in the repricing check.
 """
@@ -47,7 +47,7 @@ NODE_METHODS = [m for m in INTERPOLATIONS if m != "nss"]
 
 @pytest.mark.parametrize("method", NODE_METHODS, ids=NODE_METHODS)
 def test_cfa_annual_par_curve(method):
-    # source: REFERENCES item 9, CFA example in Bodie, Kane & Marcus (seen): annual par yields ->
+    # source: tests/REFERENCES.md #9, CFA example in Bodie, Kane & Marcus (seen): annual par yields ->
     # spot rates 5.00, 5.21, 6.05, 7.16 % and one-year forwards 5.00, 5.42, 7.75, 10.56 %
     cfg = _cfg("annual")
     days = np.array(["2031-01-15"], dtype="datetime64[D]")
@@ -65,7 +65,7 @@ def test_cfa_annual_par_curve(method):
 @pytest.mark.parametrize("method", [m for m in INTERPOLATIONS if m != "nss"],
                          ids=[m for m in INTERPOLATIONS if m != "nss"])
 def test_cfa_bond_equivalent_bootstrap(method):
-    # source: REFERENCES item 10 (CFA, seen): semiannual par 3 %, 4 %, 5 % -> spots 3.00, 4.01, 5.03 %
+    # source: tests/REFERENCES.md #10 (CFA, seen): semiannual par 3 %, 4 %, 5 % -> spots 3.00, 4.01, 5.03 %
     # (bond-equivalent = semiannual compounding; exact 18-month value 5.034)
     cfg = _cfg("semiannual")
     days = np.array(["2031-01-15"], dtype="datetime64[D]")
@@ -77,7 +77,7 @@ def test_cfa_bond_equivalent_bootstrap(method):
 
 
 def test_hull_bootstrap_from_bond_prices():
-    # source: REFERENCES item 6 (Hull, 5th-edition slides, figure 5.1; seen). The three bills are
+    # source: tests/REFERENCES.md #6 (Hull, 5th-edition slides, figure 5.1; seen). The three bills are
     # discount quotes; the two coupon bonds pay on those dates, so each solves for one discount factor.
     cfg = _cfg("continuous", quote="discount")
     days = np.array(["2031-01-15"], dtype="datetime64[D]")
@@ -91,9 +91,9 @@ def test_hull_bootstrap_from_bond_prices():
 
 
 @pytest.mark.parametrize(("zeros", "price", "par", "annuity"), [
-    # REFERENCES item 7 (Hull table 4.2, seen; par yield 6.87 from memory, recomputed 6.873)
+    # tests/REFERENCES.md #7 (Hull table 4.2, seen; par yield 6.87 from memory, recomputed 6.873)
     ([0.050, 0.058, 0.064, 0.068], 98.39, 6.873, None),
-    # REFERENCES item 8 (Hull, seen): d = 0.8694, A = 3.6935, par 7.0741 % (semiannual)
+    # tests/REFERENCES.md #8 (Hull, seen): d = 0.8694, A = 3.6935, par 7.0741 % (semiannual)
     ([0.050, 0.060, 0.065, 0.070], None, 7.0741, 3.6935),
 ], ids=["hull-4.2", "hull-par-yield"])
 def test_hull_par_yield_and_bond_price_from_zeros(zeros, price, par, annuity):

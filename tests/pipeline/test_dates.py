@@ -2,7 +2,7 @@
 
 Independent references: QuantLib's calendar arithmetic (``Calendar.advance`` with ``ModifiedFollowing``
 on ``WeekendsOnly`` and a ``BespokeCalendar`` with holidays) and its day counters, over many random
-dates (hypothesis); and the published worked examples in REFERENCES.md items 16-18.
+dates (hypothesis); and the published worked examples in tests/REFERENCES.md #16-#18.
 """
 
 from __future__ import annotations
@@ -84,7 +84,7 @@ def test_vectorised_maturities_equal_the_scalar_ones():
 
 
 MF_CASES = [
-    # REFERENCES item 18 (QuantLib test suite, weekend-only calendar)
+    # tests/REFERENCES.md #18 (QuantLib test suite, weekend-only calendar)
     ("2015-01-31", 1, "following", "2015-03-02"),
     ("2015-01-31", 1, "modified_following", "2015-02-27"),
     ("2015-02-07", 1, "modified_following", "2015-03-09"),
@@ -94,7 +94,7 @@ MF_CASES = [
 @pytest.mark.parametrize(("as_of", "months", "convention", "expected"), MF_CASES,
                          ids=["31jan-following", "31jan-modfol", "7feb-modfol"])
 def test_modified_following_worked_examples(as_of, months, convention, expected):
-    # source: REFERENCES.md item 18 (QuantLib's business-day-convention tests), seen
+    # source: tests/REFERENCES.md #18 (QuantLib's business-day-convention tests), seen
     actual = maturity_dates(np.datetime64(as_of), Tenor(months, "M"), OURS["weekends"], convention)
     assert actual == np.datetime64(expected), f"expected {expected}, actual {actual}"
 
@@ -110,7 +110,7 @@ def test_add_months_clips_to_month_end(start, months, expected):
 
 
 ACT_ACT_ISDA = [
-    # REFERENCES item 16: ISDA "EMU and market conventions" examples, as in QuantLib's test suite (seen)
+    # tests/REFERENCES.md #16: ISDA "EMU and market conventions" examples, as in QuantLib's test suite (seen)
     ("2003-11-01", "2004-05-01", 0.497724380567),
     ("1999-02-01", "1999-07-01", 0.410958904110),
     ("1999-07-01", "2000-07-01", 1.001377348600),
@@ -128,7 +128,7 @@ def test_act_act_isda_worked_examples(start, end, expected):
 
 
 THIRTY_360 = [
-    # REFERENCES item 17: ISDA "30/360 Day Count Conventions" (2008), bond basis day counts (seen)
+    # tests/REFERENCES.md #17: ISDA "30/360 Day Count Conventions" (2008), bond basis day counts (seen)
     ("2006-08-31", "2007-02-28", 178), ("2007-02-28", "2007-08-31", 183), ("2007-08-31", "2008-02-29", 179),
     ("2008-02-29", "2008-08-31", 182), ("2006-01-31", "2006-02-28", 28), ("2006-02-28", "2006-03-03", 5),
     ("2006-09-30", "2006-10-31", 30), ("2007-02-26", "2008-02-29", 363), ("2008-02-28", "2008-03-31", 33),
@@ -142,7 +142,7 @@ def test_thirty_360_bond_basis_worked_examples(start, end, expected):
 
 
 def test_thirty_e_360_differs_on_the_published_case():
-    # source: REFERENCES item 17: 30E/360 gives 32 days for 28 Feb 08 -> 31 Mar 08 (bond basis 33)
+    # source: tests/REFERENCES.md #17: 30E/360 gives 32 days for 28 Feb 08 -> 31 Mar 08 (bond basis 33)
     assert int(day_count_days(np.datetime64("2008-02-28"), np.datetime64("2008-03-31"), "30E/360")) == 32
 
 
