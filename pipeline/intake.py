@@ -131,8 +131,8 @@ def _duplicates(part: pd.DataFrame, name: str, units: str
         reason_g = ("duplicate: " + said + " for " + tenor_g + " on " + counted + " lines: " + listed + more
                     + "; none is kept")
         out = c[["file", "line", "raw"]].copy()
-        out["reason"] = reason_g[cg]
-        out["check_name"] = "duplicate"
+        out["reason"] = _texts(out, reason_g[cg])
+        out["check_name"] = _texts(out, "duplicate")
         rejected.append(out)
         heads = c.iloc[c_starts]
         finding = pd.DataFrame({
@@ -141,20 +141,28 @@ def _duplicates(part: pd.DataFrame, name: str, units: str
             "detail": said + " on " + counted + " lines of one file: " + listed + more,
         })
     if repeat.any():
-        first_line = line[starts][gid]
+        # one reason per group, shared by its rows: a flood of repeats holds one string, not one per row
+        said = "duplicate: repeats line " + line[starts].astype(str).astype(object) + " with the same value"
         out = d.loc[repeat, ["file", "line", "raw"]].copy()
-        out["reason"] = ("duplicate: repeats line " + first_line[repeat].astype(str).astype(object)
-                         + " with the same value")
-        out["check_name"] = "duplicate"
+        out["reason"] = _texts(out, said[gid[repeat]])
+        out["check_name"] = _texts(out, "duplicate")
         rejected.append(out)
     drop[pos[conflict | repeat]] = True
     return drop, rejected, finding
 
 
+def _texts(frame: pd.DataFrame, values: object) -> pd.Series:
+    """A text column kept as Python objects: a string column would copy every reason into its own
+    buffer (the store's Arrow table does that once, at the end), where most of them are one shared string."""
+    if isinstance(values, str):
+        values = np.full(len(frame), values, dtype=object)
+    return pd.Series(values, index=frame.index, dtype=object)
+
+
 def _reject(frame: pd.DataFrame, mask: np.ndarray, reason: object, check: str) -> pd.DataFrame:
     out = frame.loc[mask, ["file", "line", "raw"]].copy()
-    out["reason"] = reason if isinstance(reason, str) else np.asarray(reason, dtype=object)[mask]
-    out["check_name"] = check
+    out["reason"] = _texts(out, reason if isinstance(reason, str) else np.asarray(reason, dtype=object)[mask])
+    out["check_name"] = _texts(out, check)
     return out
 
 
@@ -321,8 +329,8 @@ def validate_intakes(intakes: Sequence[Intake], cfg: Config, validator: RowValid
         mask = np.zeros(len(it.rows), dtype=bool)
         mask[pos] = True
         moved = it.rows.iloc[pos][["line", "raw", "curve", "as_of", "tenor"]].copy()
-        moved["reason"] = np.concatenate([r for _, r, _ in parts])
-        moved["check_name"] = np.concatenate([c for _, _, c in parts])
+        moved["reason"] = _texts(moved, np.concatenate([r for _, r, _ in parts]))
+        moved["check_name"] = _texts(moved, np.concatenate([c for _, _, c in parts]))
         it.rejected = (pd.concat([it.rejected, moved], ignore_index=True)
                        .sort_values("line", kind="stable").reset_index(drop=True))
         it.rows = it.rows.loc[~mask].reset_index(drop=True)
