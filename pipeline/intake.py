@@ -207,9 +207,10 @@ def prepare_many(results: Sequence[ReadResult], cfg: Config, curves: Sequence[st
             part = part.assign(rate=to_decimal(part["value"].to_numpy(), c.units))
             known = np.isin(part["tenor"].to_numpy(dtype=object), np.array(c.tenor_labels, dtype=object))
             if (~known).any():
-                rejected.append(_reject(part, ~known,
-                                        "unknown tenor: " + part["tenor"].astype(str).to_numpy(dtype=object)
-                                        + f" is not one of curves.{name}.tenors", "unknown_tenor"))
+                # one reason per distinct tenor, shared by its rows
+                codes, labels = pd.factorize(part["tenor"].astype(str).to_numpy(dtype=object))
+                said = "unknown tenor: " + np.asarray(labels, dtype=object) + f" is not one of curves.{name}.tenors"
+                rejected.append(_reject(part, ~known, said[codes], "unknown_tenor"))
                 part = part.loc[known]
             drop, dup_rejected, finding = _duplicates(part, str(name), c.units)
             rejected.extend(dup_rejected)
