@@ -456,6 +456,25 @@ def parse_dates(text: pd.Series, date_format: str) -> pd.Series:
                               dtype="datetime64[D]"), index=text.index).astype("datetime64[s]")
 
 
+class _NumberParser:
+    """:func:`_parse_number` with a per-file cache of cell texts: a rate file repeats its numbers (a
+    flood of one line repeats every one), and the cache spares the pattern match for each repeat."""
+
+    def __init__(self, decimal_comma: bool) -> None:
+        self.decimal_comma = decimal_comma
+        self.cache: dict[str, float | str] = {}
+
+    def __call__(self, cell: str) -> float | str:
+        try:
+            return self.cache[cell]
+        except KeyError:
+            pass
+        v = _parse_number(cell, self.decimal_comma)
+        if len(self.cache) < 100_000:
+            self.cache[cell] = v
+        return v
+
+
 def _parse_number(cell: str, decimal_comma: bool) -> float | str:
     """A finite number from a text cell, or the reason it is not one (a string)."""
     t = cell.strip().rstrip("%").strip()
@@ -551,6 +570,7 @@ def _wide(grid: _Grid, date_format: str) -> ReadResult:
     n_cols = len(header)
     columns = list(zip(tenor_cols, labels, strict=True))
     parse_date = _DateParser(date_format)
+    parse_number = _NumberParser(grid.decimal_comma)
     out = _Collector()
     for record, line, raw in zip(grid.records, grid.lines, grid.raws, strict=True):
         if record[:1] == ["\x00too-long"]:
@@ -574,7 +594,7 @@ def _wide(grid: _Grid, date_format: str) -> ReadResult:
             if lab is None:
                 out.reject(line, raw, f"unparseable: column {header[i]!r} is not a tenor label")
                 continue
-            v = _parse_number(cell, grid.decimal_comma)
+            v = parse_number(cell)
             if isinstance(v, str):
                 out.reject(line, raw, f"{v} (tenor {lab})")
             else:
@@ -598,6 +618,7 @@ def _long(grid: _Grid, date_format: str) -> ReadResult:
     i_curve = lowered.index("curve") if "curve" in lowered else None
     n_cols = len(grid.header)
     parse_date = _DateParser(date_format)
+    parse_number = _NumberParser(grid.decimal_comma)
     tenor_cache: dict[str, str | None] = {}
     out = _Collector()
     for record, line, raw in zip(grid.records, grid.lines, grid.raws, strict=True):
@@ -625,7 +646,7 @@ def _long(grid: _Grid, date_format: str) -> ReadResult:
             continue
         if not rate_text.strip():
             continue        # an empty rate is a missing quote, not a row
-        v = _parse_number(rate_text, grid.decimal_comma)
+        v = parse_number(rate_text)
         if isinstance(v, str):
             out.reject(line, raw, v)
             continue
