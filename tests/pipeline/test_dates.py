@@ -54,13 +54,22 @@ def test_month_tenors_match_quantlib_modified_following(d, months, name):
 
 
 @settings(max_examples=200, deadline=None)
-@given(d=dates, n=st.integers(1, 60), unit=st.sampled_from(["D", "W"]), name=calendars)
-def test_day_and_week_tenors_match_quantlib(d, n, unit, name):
-    # source: QuantLib: calendar days (Date + Period) then Calendar.adjust(ModifiedFollowing)
-    period = ql.Period(n, ql.Days if unit == "D" else ql.Weeks)
-    expected = _np(QL[name].adjust(_ql(d) + period, ql.ModifiedFollowing))
-    actual = maturity_dates(np.datetime64(d), Tenor(n, unit), OURS[name])
-    assert actual == expected, f"{d} + {n}{unit} on {name}: expected {expected}, actual {actual}"
+@given(d=dates, n=st.integers(1, 60), name=calendars)
+def test_week_tenors_match_quantlib(d, n, name):
+    # source: QuantLib Calendar.advance(date, Period(n, Weeks), ModifiedFollowing): 7n calendar days, rolled
+    expected = _np(QL[name].advance(_ql(d), ql.Period(n, ql.Weeks), ql.ModifiedFollowing, False))
+    actual = maturity_dates(np.datetime64(d), Tenor(n, "W"), OURS[name])
+    assert actual == expected, f"{d} + {n}W on {name}: expected {expected}, actual {actual}"
+
+
+@settings(max_examples=200, deadline=None)
+@given(d=dates, n=st.integers(2, 60), name=calendars)
+def test_day_tenors_are_business_days_as_in_quantlib(d, n, name):
+    # source: QuantLib Calendar.advance(date, n, Days) counts business days (from the next business day
+    # when the as-of date is a holiday, as for ON below)
+    expected = _np(QL[name].advance(QL[name].adjust(_ql(d), ql.Following), n, ql.Days))
+    actual = maturity_dates(np.datetime64(d), Tenor(n, "D"), OURS[name])
+    assert actual == expected, f"{d} + {n}D on {name}: expected {expected}, actual {actual}"
 
 
 @settings(max_examples=200, deadline=None)
