@@ -67,9 +67,10 @@ class ReadOptions:
         return frozenset(m.strip().lower() for m in self.missing) | {""}
 
     @property
-    def missing_numbers(self) -> bool:
-        """A missing marker that reads as a number (``-999``): it must be tested before parsing."""
-        return any(_NUMBER.match(m.strip().rstrip("%").strip()) for m in self.missing)
+    def missing_numbers(self) -> frozenset[float]:
+        """The markers that read as numbers (``-999``): a rate equal to one is missing, however it
+        is written (``-999``, ``-999.0``, a float cell)."""
+        return frozenset(float(m) for m in (x.strip() for x in self.missing) if _NUMBER.match(m))
 
 
 _DEFAULT_OPTIONS = ReadOptions()
@@ -616,7 +617,7 @@ def _wide(grid: _Grid, date_format: str, options: ReadOptions = _DEFAULT_OPTIONS
 
     n_cols = len(header)
     columns = list(zip(tenor_cols, labels, strict=True))
-    missing, numbers_first = options.missing_set, options.missing_numbers
+    missing, numbers = options.missing_set, options.missing_numbers
     parse_date = _DateParser(date_format)
     out = _Collector()
     for record, line, raw in zip(grid.records, grid.lines, grid.raws, strict=True):
@@ -638,19 +639,16 @@ def _wide(grid: _Grid, date_format: str, options: ReadOptions = _DEFAULT_OPTIONS
             cell = record[i]
             if not cell:
                 continue
-            # a marker is looked up only when the cell is not a number (most cells are), unless
-            # a marker itself reads as one
-            if numbers_first and cell.strip().lower() in missing:
-                continue
             if lab is None:
                 if cell.strip().lower() not in missing:
                     out.reject(line, raw, f"unparseable: column {header[i]!r} is not a tenor label")
                 continue
             v = _parse_number(cell, grid.decimal_comma)
             if isinstance(v, str):
+                # markers are looked up only for cells that are not numbers (most cells are)
                 if cell.strip().lower() not in missing:
                     out.reject(line, raw, f"{v} (tenor {lab})")
-            else:
+            elif not (numbers and v in numbers):
                 out.accept(line, day, lab, v, None, raw)
     return out.result("wide", header)
 
@@ -670,7 +668,7 @@ def _long(grid: _Grid, date_format: str, options: ReadOptions = _DEFAULT_OPTIONS
     i_date, i_tenor, i_rate = date_cols[0], lowered.index("tenor"), lowered.index("rate")
     i_curve = lowered.index("curve") if "curve" in lowered else None
     n_cols = len(grid.header)
-    missing = options.missing_set
+    missing, numbers = options.missing_set, options.missing_numbers
     parse_date = _DateParser(date_format)
     tenor_cache: dict[str, str | None] = {}
     out = _Collector()
@@ -702,6 +700,8 @@ def _long(grid: _Grid, date_format: str, options: ReadOptions = _DEFAULT_OPTIONS
         v = _parse_number(rate_text, grid.decimal_comma)
         if isinstance(v, str):
             out.reject(line, raw, v)
+            continue
+        if numbers and v in numbers:
             continue
         curve = cells[i_curve].strip() or None if i_curve is not None else None
         out.accept(line, day, tenor, v, curve, raw)
