@@ -72,8 +72,10 @@ def _read(path: Path, cfg: Config, curve: str | None) -> tuple[dict, ReadResult,
     except OSError as exc:
         raise UserError(f"cannot read {path}: {exc.strerror or exc}") from None
     routed = route_curve(cfg, path.name, curve)
+    # a file no curve's glob routes (a long layout naming its curves) is read with the defaults
     date_format = cfg.curves[routed].date_format if routed else "iso"
-    result = read_rate_file(data, path.name, date_format=date_format)
+    options = cfg.curves[routed].read if routed else None
+    result = read_rate_file(data, path.name, date_format=date_format, options=options)
     base = dict(source_file=str(path.resolve()), file_name=path.name, sha256=hashlib.sha256(data).hexdigest(),
                 size_bytes=len(data), curve=routed, layout=result.layout)
     error = result.error

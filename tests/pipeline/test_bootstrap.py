@@ -206,3 +206,65 @@ def test_par_needs_a_coupon_frequency():
     with pytest.raises(ValueError, match="coupon frequency"):
         build_curves(np.array(["2031-01-15"], dtype="datetime64[D]"), ["1Y", "2Y"], np.array([[0.03, 0.04]]),
                      _cfg("continuous"), method="linear_zero")
+
+
+ANNUAL_AS_OF = ["2031-12-31", "2032-08-30", "2033-03-15"]
+ANNUAL_TENORS = ["6M", "1Y", "18M", "2Y", "3Y", "5Y", "7Y", "10Y"]
+ANNUAL_QUOTES = np.array([
+    [0.0340, 0.0355, 0.0368, 0.0377, 0.0391, 0.0410, 0.0425, 0.0440],
+    [0.0502, 0.0478, 0.0460, 0.0451, 0.0432, 0.0415, 0.0409, 0.0405],
+    [0.0015, 0.0024, 0.0031, 0.0040, 0.0062, 0.0098, 0.0125, 0.0150],
+])
+
+
+def _annual_cfg(coupon_frequency="annual"):
+    return CurveConfig(name="b", quote="par", compounding="continuous", day_count="30/360", calendar=CAL,
+                       coupon_frequency=coupon_frequency)
+
+
+@pytest.mark.parametrize("method", NODE_METHODS, ids=NODE_METHODS)
+def test_annual_coupons_on_a_continuously_compounded_curve_reprice_to_par(method):
+    # the coupon schedule follows coupon_frequency (annual: c paid once a year) while the zero rates
+    # are shown continuously compounded; repricing rule of the curve tests: every input bond to 1e-9
+    cfg = _annual_cfg()
+    assert all(CAL.is_business_day(np.array(ANNUAL_AS_OF, dtype="datetime64[D]")))
+    c = build_curves(np.array(ANNUAL_AS_OF, dtype="datetime64[D]"), ANNUAL_TENORS, ANNUAL_QUOTES, cfg, method=method)
+    assert c.ok.all(), c.reason
+    prices = _independent_prices(c, ANNUAL_AS_OF, ANNUAL_TENORS, ANNUAL_QUOTES, 1, "30/360")
+    assert np.max(np.abs(prices - 1.0)) < 1e-9, np.max(np.abs(prices - 1.0))
+    z = zero_rate_table(c, ANNUAL_TENORS, cfg)
+    np.testing.assert_array_equal(z["zero_rate"].to_numpy(), z["zero_rate_cc"].to_numpy())   # continuous
+    # the same par yields read as semiannual coupons give another curve: the frequency is used
+    semi = build_curves(np.array(ANNUAL_AS_OF, dtype="datetime64[D]"), ANNUAL_TENORS, ANNUAL_QUOTES,
+                        _annual_cfg("semiannual"), method=method)
+    other = zero_rate_table(semi, ANNUAL_TENORS, cfg)["zero_rate"].to_numpy()
+    assert np.max(np.abs(other - z["zero_rate"].to_numpy())) > 1e-5
+
+
+def test_annual_coupon_bonds_agree_with_quantlib_fixed_rate_bonds():
+    # source: QuantLib FixedRateBond (annual Schedule, backward from the unadjusted maturity, accrual on
+    # unadjusted dates, paid modified following; Thirty360 BondBasis) priced by DiscountingBondEngine on
+    # a DiscountCurve holding our curve's discount factors at the payment dates: each prices to 100.
+    # Tenors of two years and more (one coupon period or less is our single-payment rule, not a bond's).
+    cfg = _annual_cfg()
+    days = np.array(ANNUAL_AS_OF, dtype="datetime64[D]")
+    c = build_curves(days, ANNUAL_TENORS, ANNUAL_QUOTES, cfg, method="monotone_convex")
+    dc = ql.Thirty360(ql.Thirty360.BondBasis)
+    worst = 0.0
+    for i, day in enumerate(ANNUAL_AS_OF):
+        ql.Settings.instance().evaluationDate = _ql(day)
+        for j, label in enumerate(ANNUAL_TENORS):
+            t = parse_tenor(label)
+            if t.months < 24:
+                continue
+            end = add_months(np.datetime64(day), t.months)
+            sched = ql.Schedule(_ql(day), _ql(end), ql.Period(ql.Annual), QL_CAL, ql.Unadjusted, ql.Unadjusted,
+                                ql.DateGeneration.Backward, False)
+            bond = ql.FixedRateBond(0, 100.0, sched, [float(ANNUAL_QUOTES[i, j])], dc, ql.ModifiedFollowing)
+            pay = sorted({cf.date() for cf in bond.cashflows()})
+            taus = year_fraction(np.datetime64(day), np.array([np.datetime64(p.ISO()) for p in pay]), "30/360")
+            dfs = c.discount(np.broadcast_to(taus, (len(days), len(taus))))[i]
+            curve = ql.DiscountCurve([_ql(day), *pay], [1.0, *map(float, dfs)], dc, QL_CAL)
+            bond.setPricingEngine(ql.DiscountingBondEngine(ql.YieldTermStructureHandle(curve)))
+            worst = max(worst, abs(bond.NPV() / 100.0 - 1.0))
+    assert worst < 1e-9, worst
