@@ -84,9 +84,11 @@ def _retry_condition(task, task_run, state) -> bool:  # noqa: ANN001 - Prefect's
 # --- the inbox ----------------------------------------------------------------------------------
 
 def inbox_candidates(inbox: Path) -> list[Path]:
-    """Regular files directly in ``inbox`` (not its sub-folders), sorted by name.
+    """Entries directly in ``inbox`` (not its sub-folders) that are not folders, sorted by name.
 
-    Hidden files and names that copy tools use for a delivery in progress are skipped.
+    Hidden files and names that copy tools use for a delivery in progress are skipped. A named pipe,
+    socket or device is taken too (and never opened in a way that blocks): the load records it as
+    refused, so nothing that arrives is ignored without a trace.
     """
     if not inbox.is_dir():
         return []
@@ -95,7 +97,7 @@ def inbox_candidates(inbox: Path) -> list[Path]:
         name = p.name
         if name.startswith((".", "~")) or name.lower().endswith(_PARTIAL_SUFFIXES):
             continue
-        if p.is_file():
+        if p.is_file() or (p.exists() and not p.is_dir()):
             out.append(p)
     return sorted(out, key=lambda p: p.name)
 

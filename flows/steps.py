@@ -7,6 +7,7 @@ Computation lives in ``pipeline``; storage in ``warehouse``; a step only wires t
 
 from __future__ import annotations
 
+import dataclasses
 import hashlib
 import itertools
 import multiprocessing
@@ -30,6 +31,10 @@ class UserError(RuntimeError):
     """A mistake in what the user asked for; the message is one line."""
 
 
+class _NotRegular(UserError):
+    """A path that exists but is no regular file (a named pipe, a device, a socket)."""
+
+
 def _read_regular_file(path: Path, max_bytes: int) -> bytes:
     """The bytes of a regular file, at most ``max_bytes + 1`` of them (the reader refuses a longer one).
 
@@ -42,7 +47,8 @@ def _read_regular_file(path: Path, max_bytes: int) -> bytes:
         if stat.S_ISDIR(mode):
             raise IsADirectoryError(path)
         if not stat.S_ISREG(mode):
-            raise UserError(f"{path} is not a regular file (a pipe, device or socket); only files are read")
+            raise _NotRegular(f"{path.name} is not a regular file (a named pipe, device or socket); "
+                              "only regular files are read")
         return f.read(max_bytes + 1)
 
 
@@ -50,6 +56,13 @@ def _read(path: Path, cfg: Config, curve: str | None) -> tuple[dict, ReadResult,
     """Read and route one file (no store access): its lineage fields, what was read, its refusal."""
     try:
         data = _read_regular_file(path, ReadLimits().max_bytes)
+    except _NotRegular as exc:
+        # it is there but cannot be read as a file: recorded as refused with its reason (nothing
+        # read, so the checksum is of no bytes), never skipped without a trace
+        refused = dataclasses.replace(read_rate_file(b"", path.name), error=str(exc))
+        base = dict(source_file=str(path.absolute()), file_name=path.name, sha256=hashlib.sha256(b"").hexdigest(),
+                    size_bytes=0, curve=route_curve(cfg, path.name, curve), layout=None)
+        return base, refused, refused.error
     except IsADirectoryError:
         raise UserError(f"{path} is a directory, not a rate file") from None
     except FileNotFoundError:
@@ -59,8 +72,10 @@ def _read(path: Path, cfg: Config, curve: str | None) -> tuple[dict, ReadResult,
     except OSError as exc:
         raise UserError(f"cannot read {path}: {exc.strerror or exc}") from None
     routed = route_curve(cfg, path.name, curve)
+    # a file no curve's glob routes (a long layout naming its curves) is read with the defaults
     date_format = cfg.curves[routed].date_format if routed else "iso"
-    result = read_rate_file(data, path.name, date_format=date_format)
+    options = cfg.curves[routed].read if routed else None
+    result = read_rate_file(data, path.name, date_format=date_format, options=options)
     base = dict(source_file=str(path.resolve()), file_name=path.name, sha256=hashlib.sha256(data).hexdigest(),
                 size_bytes=len(data), curve=routed, layout=result.layout)
     error = result.error

@@ -16,11 +16,13 @@ from typing import Any
 import numpy as np
 
 from pipeline.dates import DAY_COUNTS, WEEKDAYS, BusinessCalendar
+from pipeline.readers import DEFAULT_MISSING, ReadOptions
 from pipeline.tenors import Tenor, TenorError, parse_tenor
 
 __all__ = [
     "CHECK_NAMES",
     "COMPOUNDINGS",
+    "COUPON_FREQUENCIES",
     "INTERPOLATIONS",
     "QUOTE_KINDS",
     "SEVERITIES",
@@ -35,6 +37,10 @@ __all__ = [
 
 QUOTE_KINDS = ("zero", "par", "discount", "simple")
 COMPOUNDINGS = ("continuous", "annual", "semiannual", "quarterly", "monthly", "simple")
+COUPON_FREQUENCIES = ("annual", "semiannual", "quarterly", "monthly")
+# other spellings of a day count that name the same convention
+_DAY_COUNT_ALIASES = {"act/act isda": "ACT/ACT", "act/act (isda)": "ACT/ACT", "actual/actual (isda)": "ACT/ACT",
+                      "act/365 fixed": "ACT/365F", "act/365f": "ACT/365F"}
 UNITS = ("percent", "decimal", "bp")
 INTERPOLATIONS = ("linear_zero", "log_linear_discount", "monotone_convex", "cubic_zero", "nss")
 FREQUENCIES = ("daily", "monthly")
@@ -94,10 +100,28 @@ class CurveConfig:
     severity: dict[str, str] = field(default_factory=lambda: dict(DEFAULT_SEVERITY))
     premium_window_days: int = 250
     late_after: str = "18:00"          # HH:MM in the schedule's time zone: a day's curve is due by then
+    coupon_frequency: str | None = None
+    read: ReadOptions = field(default_factory=ReadOptions)
 
     @property
     def frequency_per_year(self) -> int | None:
+        """Compounding periods a year of the curve's zero and forward rates (see
+        :func:`compounding_frequency`)."""
         return compounding_frequency(self.compounding)
+
+    @property
+    def coupons_per_year(self) -> int | None:
+        """Coupons a year of the curve's par bonds: ``coupon_frequency`` when set, else the
+        compounding's frequency when that is annual, semiannual, quarterly or monthly; ``None``
+        when neither gives one (continuous or simple compounding without ``coupon_frequency``)."""
+        if self.coupon_frequency is not None:
+            return compounding_frequency(self.coupon_frequency)
+        return compounding_frequency(self.compounding) or None
+
+    @property
+    def spot_days(self) -> int:
+        """The spot lag in business days (kept on :attr:`calendar`, which every maturity uses)."""
+        return self.calendar.spot_days
 
     @property
     def tenor_labels(self) -> tuple[str, ...]:
@@ -239,7 +263,8 @@ def _parse_curve(name: str, t: dict[str, Any], base: Path) -> CurveConfig:
     w = f"curves.{name}."
     allowed = {
         "files", "quote", "compounding", "day_count", "units", "interpolation", "tenors", "frequency",
-        "calendar", "forward", "realize", "checks", "date_format", "audit",
+        "calendar", "forward", "realize", "checks", "date_format", "audit", "spot_days", "coupon_frequency",
+        "read",
     }
     _check_keys(t, allowed, w)
     if "tenors" not in t:
@@ -263,7 +288,11 @@ def _parse_curve(name: str, t: dict[str, Any], base: Path) -> CurveConfig:
         norm_weekend.append(match[0])
     if len(set(norm_weekend)) == 7:
         raise ConfigError(f"{w}calendar.weekend cannot hold all seven days")
-    calendar = BusinessCalendar.of(norm_weekend, _holidays(cal, base, w))
+    spot_days = _number(t, "spot_days", 0, w, integer=True)
+    if spot_days > 10:
+        raise ConfigError(f"{w}spot_days = {spot_days} must be an integer from 0 to 10 (business days)")
+    calendar = BusinessCalendar.of(norm_weekend, _holidays(cal, base, w), spot_days)
+    _check_day_tenors(tenors, spot_days, f"{w}tenors")
 
     fwd = t.get("forward", {})
     if not isinstance(fwd, dict):
@@ -316,6 +345,16 @@ def _parse_curve(name: str, t: dict[str, Any], base: Path) -> CurveConfig:
     _check_keys(aud, {"premium_window_days"}, f"{w}audit.")
     window = _number(aud, "premium_window_days", 250, f"{w}audit.", integer=True, minimum=2)
 
+    read = _read_options(t.get("read", {}), f"{w}read")
+    quote = _choice(t, "quote", QUOTE_KINDS, "zero", w)
+    compounding = _choice(t, "compounding", COMPOUNDINGS, "continuous", w)
+    coupon_frequency = None
+    if "coupon_frequency" in t:
+        coupon_frequency = _choice(t, "coupon_frequency", COUPON_FREQUENCIES, "annual", w)
+    elif quote == "par" and compounding not in COUPON_FREQUENCIES:
+        raise ConfigError(f"{w}coupon_frequency is required for par quotes when compounding = {compounding!r}; "
+                          f"allowed: {', '.join(COUPON_FREQUENCIES)}")
+
     files = t.get("files", f"{name}_*.csv")
     if not isinstance(files, str) or not files:
         raise ConfigError(f"{w}files must be a file-name glob such as \"{name}_*.csv\"")
@@ -323,9 +362,9 @@ def _parse_curve(name: str, t: dict[str, Any], base: Path) -> CurveConfig:
     return CurveConfig(
         name=name,
         files=files,
-        quote=_choice(t, "quote", QUOTE_KINDS, "zero", w),
-        compounding=_choice(t, "compounding", COMPOUNDINGS, "continuous", w),
-        day_count=_choice(t, "day_count", DAY_COUNTS, "ACT/365F", w),
+        quote=quote,
+        compounding=compounding,
+        day_count=_day_count(t, w),
         units=_choice(t, "units", UNITS, "percent", w),
         interpolation=_choice(t, "interpolation", INTERPOLATIONS, "monotone_convex", w),
         tenors=tenors,
@@ -342,7 +381,52 @@ def _parse_curve(name: str, t: dict[str, Any], base: Path) -> CurveConfig:
         inversion_pairs=tuple(pairs),
         severity=severity,
         premium_window_days=window,
+        coupon_frequency=coupon_frequency,
+        read=read,
     )
+
+
+def _day_count(t: dict[str, Any], w: str) -> str:
+    value = t.get("day_count", "ACT/365F")
+    if isinstance(value, str):
+        alias = _DAY_COUNT_ALIASES.get(" ".join(value.lower().split()))
+        if alias is not None:
+            return alias
+    shown = tuple("ACT/ACT (ISDA)" if d == "ACT/ACT" else d for d in DAY_COUNTS)
+    try:
+        return _choice(t, "day_count", DAY_COUNTS, "ACT/365F", w)
+    except ConfigError:
+        raise ConfigError(f"{w}day_count = {value!r} is not allowed; allowed: {', '.join(shown)}") from None
+
+
+def _check_day_tenors(tenors: tuple[Tenor, ...], spot_days: int, key: str) -> None:
+    """Refuse two business-day tenors that always mature on the same day (ON = 1D, TN = 2D, SN =
+    spot + 1): a curve cannot have two nodes on one date."""
+    seen: dict[int, str] = {}
+    for t in tenors:
+        days = spot_days + 1 if t.unit == "SN" else t.business_days
+        if days is None:
+            continue
+        if days in seen:
+            raise ConfigError(f"{key}: {seen[days]} and {t.label} both mature {days} business day(s) after the "
+                              f"as-of date (spot_days = {spot_days}); list one of them")
+        seen[days] = t.label
+
+
+def _read_options(r: Any, w: str) -> ReadOptions:
+    if not isinstance(r, dict):
+        raise ConfigError(f"{w} must be a table with skip_rows / sheet / missing")
+    _check_keys(r, {"skip_rows", "sheet", "missing"}, f"{w}.")
+    skip = _number(r, "skip_rows", 0, f"{w}.", integer=True)
+    sheet = r.get("sheet", 0)
+    if isinstance(sheet, bool) or not (isinstance(sheet, str) and sheet.strip()
+                                       or isinstance(sheet, int) and sheet >= 0):
+        raise ConfigError(f"{w}.sheet = {sheet!r} must be a sheet name or a 0-based sheet number")
+    missing = r.get("missing", list(DEFAULT_MISSING))
+    if not isinstance(missing, list) or not all(isinstance(m, str) for m in missing):
+        raise ConfigError(f"{w}.missing must be a list of strings such as [\"N/A\", \"-\"]")
+    return ReadOptions(skip_rows=skip, sheet=sheet.strip() if isinstance(sheet, str) else sheet,
+                       missing=tuple(missing))
 
 
 def _path(table: dict[str, Any], key: str, default: str, base: Path, where: str) -> Path:

@@ -1,15 +1,18 @@
 """Readers: the bytes of a rate file in, a frame of quote rows and a frame of rejected rows out.
 
 Formats: CSV (delimiter sniffed among ``, ; TAB |``, optional BOM, quoted fields), Parquet and Excel
-``.xlsx`` (first sheet). Layouts, detected from the header:
+``.xlsx`` (the first sheet, or the one :class:`ReadOptions` names). Layouts, detected from the header:
 
 * wide: a date column (``date``, ``as_of`` or else the first column) and one column per tenor label;
 * long: columns ``date`` (or ``as_of``), ``tenor``, ``rate`` and optionally ``curve``.
 
 A *row* is one quote: one date and tenor with a non-empty value. A line that cannot be split into
 quotes (a garbled date, the wrong number of fields) counts as one rejected row. So for every file,
-rows read = rows accepted + rows rejected. Empty cells are missing quotes, not zeros, and are not rows.
-Line numbers count the header as line 1 in every format.
+rows read = rows accepted + rows rejected. Empty rate cells, and rate cells holding one of the
+missing markers of :class:`ReadOptions` (``N/A``, ``#N/A``, ``-`` ... by default), are missing
+quotes, not zeros, and are not rows. Line numbers count the header as line 1 in every format, unless
+title lines are skipped above it (``skip_rows``): then they are the file's own line (sheet row)
+numbers, the ones a user finds in an editor.
 
 Nothing here raises on bad data: a file that cannot be read at all comes back with ``error`` set.
 """
@@ -28,7 +31,8 @@ import pandas as pd
 
 from pipeline.tenors import TenorError, parse_tenor
 
-__all__ = ["ReadLimits", "ReadResult", "read_rate_file", "to_decimal", "UNIT_DIVISORS"]
+__all__ = ["DEFAULT_MISSING", "ReadLimits", "ReadOptions", "ReadResult", "read_rate_file", "to_decimal",
+           "UNIT_DIVISORS"]
 
 UNIT_DIVISORS = {"percent": 100.0, "decimal": 1.0, "bp": 10_000.0}
 _DATE_NAMES = ("date", "as_of", "asof", "as of", "observation_date")
@@ -36,6 +40,40 @@ _ROW_COLUMNS = ["line", "as_of", "tenor", "value", "curve", "raw"]
 _REJECT_COLUMNS = ["line", "raw", "reason"]
 _NUMBER = re.compile(r"^[+-]?(\d+(\.\d*)?|\.\d+)([eE][+-]?\d{1,3})?$")
 _DECIMAL_COMMA = re.compile(r"^[+-]?\d+,\d+$")
+
+
+# Cells that mean "no quote today" in spreadsheet and database exports, matched after trimming and
+# ignoring case. Not among them: NaN and inf (a program's arithmetic failed: rejected, so it is seen)
+# and spreadsheet errors such as #VALUE!, #REF!, #DIV/0! (a broken formula: rejected likewise).
+DEFAULT_MISSING = ("", "N/A", "#N/A", "NA", "-", "--", "null")
+
+
+@dataclass(frozen=True)
+class ReadOptions:
+    """How to read one curve's files (``read.*`` in the config).
+
+    ``skip_rows``: lines (sheet rows) above the header to skip, blank ones included (CSV and
+    ``.xlsx``; Parquet has no title lines). ``sheet``: the ``.xlsx`` sheet, by name or 0-based
+    number. ``missing``: rate cells holding one of these (trimmed, any case) are missing quotes; an
+    empty cell always is.
+    """
+
+    skip_rows: int = 0
+    sheet: str | int = 0
+    missing: tuple[str, ...] = DEFAULT_MISSING
+
+    @property
+    def missing_set(self) -> frozenset[str]:
+        return frozenset(m.strip().lower() for m in self.missing) | {""}
+
+    @property
+    def missing_numbers(self) -> frozenset[float]:
+        """The markers that read as numbers (``-999``): a rate equal to one is missing, however it
+        is written (``-999``, ``-999.0``, a float cell)."""
+        return frozenset(float(m) for m in (x.strip() for x in self.missing) if _NUMBER.match(m))
+
+
+_DEFAULT_OPTIONS = ReadOptions()
 
 
 @dataclass(frozen=True)
@@ -193,12 +231,18 @@ def _sniffed_delimiter(sample: str) -> str:
         return best if counts[best] else ","
 
 
-def _csv_grid(data: bytes, limits: ReadLimits) -> _Grid | str:
+def _csv_grid(data: bytes, limits: ReadLimits, skip_rows: int = 0) -> _Grid | str:
     if b"\x00" in data[:8192] and not data.startswith((b"\xff\xfe", b"\xfe\xff")):
         return "binary file: not a CSV, Parquet or .xlsx rate file"
     text = _decode(data).replace("\r\n", "\n").replace("\r", "\n")
     if not text.strip():
         return "empty file: no header and no rows"
+    if skip_rows:
+        # title lines go before sniffing: their commas and words would mislead the delimiter
+        parts = text.split("\n", skip_rows)
+        if len(parts) <= skip_rows or not parts[skip_rows].strip():
+            return f"no header after the {skip_rows} line(s) read.skip_rows skips"
+        text = parts[skip_rows]
     first_lines = "\n".join(text.split("\n", 20)[:20])
     delimiter = _sniff_delimiter(first_lines)
     physical = text.split("\n")
@@ -227,12 +271,12 @@ def _csv_grid(data: bytes, limits: ReadLimits) -> _Grid | str:
                 records.append(["\x00too-long"])
             else:
                 records.append(record)
-            lines.append(start)
+            lines.append(start + skip_rows)
             raw = "\n".join(physical[start - 1:end])
             raws.append(raw if len(raw) <= 500 else raw[:500] + "...")
             start = end + 1
     except csv.Error as exc:
-        return f"line {start}: cannot be split into fields ({exc})"
+        return f"line {start + skip_rows}: cannot be split into fields ({exc})"
     if header is None:
         return "empty file: no header and no rows"
     return _Grid(header, records, lines, raws, decimal_comma=delimiter == ";")
@@ -353,7 +397,7 @@ def _typed_long(table) -> ReadResult | None:  # noqa: ANN001 - a pyarrow Table
     return ReadResult(rows, _empty_rejected(), "long", None, header)
 
 
-def _xlsx_grid(data: bytes, limits: ReadLimits) -> _Grid | str:
+def _xlsx_grid(data: bytes, limits: ReadLimits, skip_rows: int = 0, sheet: str | int = 0) -> _Grid | str:
     try:
         with zipfile.ZipFile(io.BytesIO(data)) as zf:
             total = sum(i.file_size for i in zf.infolist())
@@ -367,25 +411,47 @@ def _xlsx_grid(data: bytes, limits: ReadLimits) -> _Grid | str:
     try:
         wb = openpyxl.load_workbook(io.BytesIO(data), read_only=True, data_only=True)
         try:
-            return _sheet_grid(wb.worksheets[0], limits)
+            ws = _pick_sheet(wb, sheet)
+            if isinstance(ws, str):
+                return ws
+            return _sheet_grid(ws, limits, skip_rows)
         finally:
             wb.close()
     except Exception as exc:  # openpyxl surfaces many error types for malformed workbooks
         return f"not a readable .xlsx file ({type(exc).__name__}: {str(exc).splitlines()[0][:200] if str(exc) else ''})"
 
 
-def _sheet_grid(ws, limits: ReadLimits) -> _Grid | str:  # noqa: ANN001 - an openpyxl read-only worksheet
+def _pick_sheet(wb, sheet: str | int):  # noqa: ANN001, ANN202 - an openpyxl workbook; a sheet or a refusal
+    names = wb.sheetnames
+    shown = ", ".join(repr(n) for n in names[:20]) + (", ..." if len(names) > 20 else "")
+    if isinstance(sheet, int):
+        if 0 <= sheet < len(names):
+            return wb.worksheets[sheet]
+        return f"no sheet number {sheet} (read.sheet counts from 0); the workbook's sheets: {shown}"
+    for n in names:
+        if n == sheet:
+            return wb[n]
+    for n in names:
+        if n.strip().lower() == sheet.strip().lower():
+            return wb[n]
+    return f"no sheet named {sheet[:60]!r} (read.sheet); the workbook's sheets: {shown}"
+
+
+def _sheet_grid(ws, limits: ReadLimits, skip_rows: int = 0) -> _Grid | str:  # noqa: ANN001 - an openpyxl read-only worksheet
     # The sheet's declared size is the file's claim, not a fact: a 5 KB workbook can declare
     # A1:XFD1048576 and openpyxl would pad every row to it (17 G cells). Ignore it, find the header
     # with rows cut at max_columns + 1 cells, then read data rows only as wide as the header.
     ws.reset_dimensions()
     header: list[str] | None = None
     first = 0
-    for i, r in enumerate(ws.iter_rows(max_col=limits.max_columns + 1, values_only=True), start=1):
+    rows = ws.iter_rows(min_row=skip_rows + 1, max_col=limits.max_columns + 1, values_only=True)
+    for i, r in enumerate(rows, start=skip_rows + 1):
         if any(_cell_text(c).strip() for c in r):
             header, first = [_cell_text(c).strip() for c in r], i
             break
     if header is None:
+        if skip_rows:
+            return f"no header after the {skip_rows} row(s) read.skip_rows skips"
         return "empty workbook: no header and no rows"
     while header and not header[-1]:
         header.pop()
@@ -454,6 +520,25 @@ def parse_dates(text: pd.Series, date_format: str) -> pd.Series:
     values = [parse(str(t)) for t in text]
     return pd.Series(np.array([v if v is not None else np.datetime64("NaT") for v in values],
                               dtype="datetime64[D]"), index=text.index).astype("datetime64[s]")
+
+
+class _NumberParser:
+    """:func:`_parse_number` with a per-file cache of cell texts: a rate file repeats its numbers (a
+    flood of one line repeats every one), and the cache spares the pattern match for each repeat."""
+
+    def __init__(self, decimal_comma: bool) -> None:
+        self.decimal_comma = decimal_comma
+        self.cache: dict[str, float | str] = {}
+
+    def __call__(self, cell: str) -> float | str:
+        try:
+            return self.cache[cell]
+        except KeyError:
+            pass
+        v = _parse_number(cell, self.decimal_comma)
+        if len(self.cache) < 100_000:
+            self.cache[cell] = v
+        return v
 
 
 def _parse_number(cell: str, decimal_comma: bool) -> float | str:
@@ -526,7 +611,7 @@ class _Collector:
         return ReadResult(rows, rejected, layout, None, header)
 
 
-def _wide(grid: _Grid, date_format: str) -> ReadResult:
+def _wide(grid: _Grid, date_format: str, options: ReadOptions = _DEFAULT_OPTIONS) -> ReadResult:
     header = grid.header
     lowered = [h.lower() for h in header]
     date_cols = [i for i, h in enumerate(lowered) if h in _DATE_NAMES]
@@ -536,7 +621,8 @@ def _wide(grid: _Grid, date_format: str) -> ReadResult:
     date_col = date_cols[0] if date_cols else 0
     tenor_cols = [i for i in range(len(header)) if i != date_col]
     if not tenor_cols:
-        return _refuse("header has no tenor columns (expected e.g. date,3M,1Y,10Y or date,tenor,rate)")
+        return _refuse("header has no tenor columns (expected e.g. date,3M,1Y,10Y or date,tenor,rate; "
+                       "title lines above the header are skipped with read.skip_rows)")
     labels, bad = _tenor_labels([header[i] for i in tenor_cols])
     seen: dict[str, str] = {}
     for i, lab in zip(tenor_cols, labels, strict=True):
@@ -550,7 +636,9 @@ def _wide(grid: _Grid, date_format: str) -> ReadResult:
 
     n_cols = len(header)
     columns = list(zip(tenor_cols, labels, strict=True))
+    missing, numbers = options.missing_set, options.missing_numbers
     parse_date = _DateParser(date_format)
+    parse_number = _NumberParser(grid.decimal_comma)
     out = _Collector()
     for record, line, raw in zip(grid.records, grid.lines, grid.raws, strict=True):
         if record[:1] == ["\x00too-long"]:
@@ -569,20 +657,23 @@ def _wide(grid: _Grid, date_format: str) -> ReadResult:
             if i >= width:
                 continue
             cell = record[i]
-            if not cell or not cell.strip():
+            if not cell:
                 continue
             if lab is None:
-                out.reject(line, raw, f"unparseable: column {header[i]!r} is not a tenor label")
+                if cell.strip().lower() not in missing:
+                    out.reject(line, raw, f"unparseable: column {header[i]!r} is not a tenor label")
                 continue
-            v = _parse_number(cell, grid.decimal_comma)
+            v = parse_number(cell)
             if isinstance(v, str):
-                out.reject(line, raw, f"{v} (tenor {lab})")
-            else:
+                # markers are looked up only for cells that are not numbers (most cells are)
+                if cell.strip().lower() not in missing:
+                    out.reject(line, raw, f"{v} (tenor {lab})")
+            elif not (numbers and v in numbers):
                 out.accept(line, day, lab, v, None, raw)
     return out.result("wide", header)
 
 
-def _long(grid: _Grid, date_format: str) -> ReadResult:
+def _long(grid: _Grid, date_format: str, options: ReadOptions = _DEFAULT_OPTIONS) -> ReadResult:
     lowered = [h.lower() for h in grid.header]
     date_cols = [i for i, h in enumerate(lowered) if h in _DATE_NAMES]
     if len(date_cols) != 1:
@@ -597,7 +688,9 @@ def _long(grid: _Grid, date_format: str) -> ReadResult:
     i_date, i_tenor, i_rate = date_cols[0], lowered.index("tenor"), lowered.index("rate")
     i_curve = lowered.index("curve") if "curve" in lowered else None
     n_cols = len(grid.header)
+    missing, numbers = options.missing_set, options.missing_numbers
     parse_date = _DateParser(date_format)
+    parse_number = _NumberParser(grid.decimal_comma)
     tenor_cache: dict[str, str | None] = {}
     out = _Collector()
     for record, line, raw in zip(grid.records, grid.lines, grid.raws, strict=True):
@@ -623,11 +716,13 @@ def _long(grid: _Grid, date_format: str) -> ReadResult:
         if tenor is None:
             out.reject(line, raw, f"unparseable: tenor {t.strip()[:30]!r} is not a tenor label")
             continue
-        if not rate_text.strip():
-            continue        # an empty rate is a missing quote, not a row
-        v = _parse_number(rate_text, grid.decimal_comma)
+        if rate_text.strip().lower() in missing:
+            continue        # an empty rate (or a missing marker) is a missing quote, not a row
+        v = parse_number(rate_text)
         if isinstance(v, str):
             out.reject(line, raw, v)
+            continue
+        if numbers and v in numbers:
             continue
         curve = cells[i_curve].strip() or None if i_curve is not None else None
         out.accept(line, day, tenor, v, curve, raw)
@@ -649,13 +744,15 @@ def sniff_format(data: bytes, name: str) -> str:
 
 
 def read_rate_file(data: bytes, name: str = "", *, date_format: str = "iso",
-                   limits: ReadLimits | None = None) -> ReadResult:
+                   limits: ReadLimits | None = None, options: ReadOptions | None = None) -> ReadResult:
     """Parse one rate file's bytes. Never raises on bad data (see the module docstring).
 
-    ``date_format`` is ``iso`` (always accepted), ``day_first`` or ``month_first``.
+    ``date_format`` is ``iso`` (always accepted), ``day_first`` or ``month_first``. ``options``:
+    title lines to skip, the ``.xlsx`` sheet and the missing markers (default :class:`ReadOptions`).
     Values are returned in the file's own units; convert them with :func:`to_decimal`.
     """
     limits = limits or ReadLimits()
+    options = options or ReadOptions()
     if len(data) > limits.max_bytes:
         return _refuse(f"file is {len(data):,} bytes; at most {limits.max_bytes:,} are read")
     if not data:
@@ -668,18 +765,21 @@ def read_rate_file(data: bytes, name: str = "", *, date_format: str = "iso",
             table = _parquet_table(data, limits)
             if isinstance(table, str):
                 return _refuse(table)
-            typed = _typed_long(table)
+            # a typed rate column holds no marker text; a marker that reads as a number needs the cells
+            typed = None if options.missing_numbers else _typed_long(table)
             if typed is not None:
                 return typed
             grid = _table_grid(table)
+        elif kind == "xlsx":
+            grid = _xlsx_grid(data, limits, options.skip_rows, options.sheet)
         else:
-            grid = {"xlsx": _xlsx_grid, "csv": _csv_grid}[kind](data, limits)
+            grid = _csv_grid(data, limits, options.skip_rows)
         if isinstance(grid, str):
             return _refuse(grid)
         lowered = {h.lower() for h in grid.header}
         if "tenor" in lowered and "rate" in lowered:
-            return _long(grid, date_format)
-        return _wide(grid, date_format)
+            return _long(grid, date_format, options)
+        return _wide(grid, date_format, options)
     except MemoryError:
         return _refuse("file too large to read in memory")
     except RecursionError:

@@ -14,7 +14,7 @@ import numpy as np
 
 from pipeline.bootstrap import bootstrap_par
 from pipeline.compounding import to_continuous
-from pipeline.config import INTERPOLATIONS, QUOTE_KINDS, CurveConfig, compounding_frequency
+from pipeline.config import INTERPOLATIONS, QUOTE_KINDS, CurveConfig
 from pipeline.curves.base import Block, CurveSet
 from pipeline.curves.cubic_zero import CubicZeroBlock
 from pipeline.curves.linear_zero import LinearZeroBlock
@@ -73,7 +73,7 @@ def build_curves(
     as_of : ``(D,)`` dates (``datetime64[D]`` or anything :func:`pipeline.dates.as_days` takes).
     tenors : ``T`` tenors (:class:`~pipeline.tenors.Tenor` or labels), in any order.
     quotes : ``(D, T)`` decimals, NaN = missing, of kind ``cfg.quote``: ``zero`` rates in
-        ``cfg.compounding``; ``par`` yields with the coupon frequency of ``cfg.compounding`` (see
+        ``cfg.compounding``; ``par`` yields with ``cfg.coupons_per_year`` coupons a year (see
         :mod:`pipeline.bootstrap`); ``discount`` factors; ``simple`` money-market rates.
     cfg : the curve's conventions: ``day_count``, ``calendar``, ``compounding``, ``quote``, and
         ``interpolation`` unless ``method`` is given.
@@ -106,11 +106,11 @@ def build_curves(
 
     with np.errstate(invalid="ignore"):
         if cfg.quote == "par":
-            m = compounding_frequency(cfg.compounding)
+            m = cfg.coupons_per_year
             if not m:
                 raise ValueError(
                     f"curve {cfg.name!r}: par quotes need a coupon frequency; compounding = "
-                    f"{cfg.compounding!r} has none (use annual, semiannual, quarterly or monthly)"
+                    f"{cfg.compounding!r} has none (set coupon_frequency: annual, semiannual, quarterly or monthly)"
                 )
             direct = None
             usable = np.isfinite(q) & (times > 0.0) & (1.0 + q / m > 0.0)

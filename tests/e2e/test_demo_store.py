@@ -3,7 +3,7 @@
 Independent reference throughout: the demo's manifest (pipeline.demo_market.write_demo_inbox), i.e.
 the clean generated quotes and the list of defects planted in the files, and the files themselves
 read back with pyarrow / plain text. Recomputations are plain pandas on what the store holds;
-statistics are checked against statsmodels 0.15 (REFERENCES item 20).
+statistics are checked against statsmodels 0.15 (tests/REFERENCES.md #20).
 """
 
 from __future__ import annotations
@@ -300,7 +300,7 @@ def test_demo_forwards_starting_today_have_no_error(demo_done):
 
 def test_audit_figures_equal_statsmodels_on_the_stored_outcomes(demo_done):
     """hac_t, DM (Harvey-Leybourne-Newbold form) and the Mincer-Zarnowitz Wald test of one horizon,
-    recomputed by statsmodels 0.15 from the outcomes the store holds (REFERENCES items 19, 20)."""
+    recomputed by statsmodels 0.15 from the outcomes the store holds (tests/REFERENCES.md #19, #20)."""
     s, m = 12, 12
     row = demo_done.sql("SELECT * FROM audit_result WHERE curve = 'govt' AND start_months = ? AND tenor_months = ? "
                         "AND regime = 'all'", [s, m]).iloc[0]

@@ -81,23 +81,42 @@ def test_sql_cannot_read_files_outside_the_store_unless_allowed(project, tmp_pat
 
 
 @pytest.mark.parametrize(
-    ("content", "message"),
+    ("content", "message", "code", "status", "read", "rejected"),
     [
-        pytest.param(b"", "empty file", id="empty-file"),
-        pytest.param(b"\x00\xff\x00\xfe" * 64, "binary file", id="binary-file"),
-        pytest.param(b"date,3M,1Y\n", "read 0, accepted 0", id="header-only"),
-        pytest.param(b"date,7Q,9Z\n2031-01-02,1,2\n", "no column of the header is a tenor", id="unknown-tenors"),
-        pytest.param(b"date,3M\n2031-01-02,abc\n", "rejected 1", id="text-in-rate"),
-        pytest.param(b"date,as_of,3M\n2031-01-02,2031-01-02,4\n", "two date columns", id="two-date-columns"),
-        pytest.param(b"date,3M\n2031-01-05,4\n2031-01-02,4\n", "accepted 2", id="dates-out-of-order"),
+        # exit 1 when a file is refused or a row rejected, 0 otherwise (the contract's exit statuses);
+        # rows read counted by hand from each file's text
+        pytest.param(b"", "empty file", 1, "refused", 0, 0, id="empty-file"),
+        pytest.param(b"\x00\xff\x00\xfe" * 64, "binary file", 1, "refused", 0, 0, id="binary-file"),
+        pytest.param(b"date,3M,1Y\n", "read 0, accepted 0", 0, "loaded", 0, 0, id="header-only"),
+        pytest.param(b"date,7Q,9Z\n2031-01-02,1,2\n", "no column of the header is a tenor", 1, "refused", 0, 0,
+                     id="unknown-tenors"),
+        pytest.param(b"date,3M\n2031-01-02,abc\n", "rejected 1", 1, "loaded", 1, 1, id="text-in-rate"),
+        pytest.param(b"date,as_of,3M\n2031-01-02,2031-01-02,4\n", "two date columns", 1, "refused", 0, 0,
+                     id="two-date-columns"),
+        pytest.param(b"date,3M\n2031-01-05,4\n2031-01-02,4\n", "accepted 2", 0, "loaded", 2, 0,
+                     id="dates-out-of-order"),
     ],
 )
-def test_bad_files_never_traceback(project, content, message):
+def test_bad_files_never_traceback(project, content, message, code, status, read, rejected):
     (project / "govt_bad.csv").write_bytes(content)
     proc = run_cli("load", "govt_bad.csv", cwd=project)
     assert "Traceback" not in proc.stdout + proc.stderr
     assert message in proc.stdout + proc.stderr
-    assert proc.returncode in (0, 1)
+    assert proc.returncode == code, proc.stdout + proc.stderr
+    # the store holds what the line said: one load, its status and counts, a refusal's reason at line 0
+    import duckdb
+
+    con = duckdb.connect(str(project / "store.duckdb"), read_only=True)
+    try:
+        loads = con.execute("SELECT status, rows_read, rows_rejected FROM loads").fetchall()
+        reasons = con.execute("SELECT line, reason FROM rejected_rows").fetchall()
+    finally:
+        con.close()
+    assert loads == [(status, read, rejected)]
+    if status == "refused":
+        assert len(reasons) == 1 and reasons[0][0] == 0 and message in reasons[0][1]
+    else:
+        assert len(reasons) == rejected
 
 
 def test_missing_file_is_a_one_line_error(project):
@@ -158,3 +177,6 @@ def test_usage_errors_exit_2(project):
     assert proc.returncode == 2 and "No such command" in _one_line_error(proc)
     proc = run_cli("sql", "SELECT 1", "--format", "xml", cwd=project)
     assert proc.returncode == 2
+    line = _one_line_error(proc)
+    assert "--format 'xml' is not allowed" in line and "table, csv, json, parquet" in line
+    assert proc.stdout == ""

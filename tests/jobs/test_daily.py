@@ -67,6 +67,9 @@ def test_daily_loads_the_inbox_refuses_garbage_and_a_second_run_is_a_no_op(make_
     delivered = sorted(p for p in cfg.inbox.iterdir())
     garbage = cfg.inbox / "govt_2013-01.csv"
     garbage.write_bytes(bytes(range(256)) * 4)  # routed to govt by its name, but not a text file at all
+    # a named pipe with no writer: opening it to read would block the run for ever
+    pipe = cfg.inbox / "govt_2013-02.csv"
+    os.mkfifo(pipe)
     expected_rows = quotes_in_files(delivered)
 
     summary = daily(config_path=str(cfg.path), settle_seconds=0.05)
@@ -74,7 +77,7 @@ def test_daily_loads_the_inbox_refuses_garbage_and_a_second_run_is_a_no_op(make_
     # a refused file does not stop the run; it ends "completed with findings"
     assert summary.status == COMPLETED_WITH_FINDINGS
     assert summary.files_loaded == len(delivered) == 48
-    assert summary.files_refused == 1
+    assert summary.files_refused == 2
     # every quote in the files is in the store (plain recount of the files)
     [(n_quotes,)] = store_value(cfg, "SELECT count(*) FROM quotes")
     [(n_rejected,)] = store_value(cfg, "SELECT count(*) FROM rejected_rows WHERE line > 0")
@@ -86,10 +89,16 @@ def test_daily_loads_the_inbox_refuses_garbage_and_a_second_run_is_a_no_op(make_
     [(line, reason)] = store_value(cfg, "SELECT line, reason FROM rejected_rows WHERE source_file LIKE "
                                         "'%govt_2013-01.csv'")
     assert line == 0 and reason
-    # files moved: the inbox is empty, the loaded ones in loaded/, the garbage in refused/
-    assert [p for p in cfg.inbox.iterdir() if p.is_file()] == []
+    # the pipe is recorded as refused too, with its reason (README: a file that cannot be read at
+    # all is logged as refused), and nothing was read from it
+    [(status, rows_read, detail)] = store_value(cfg, "SELECT l.status, l.rows_read, r.reason FROM loads l "
+                                                     "JOIN rejected_rows r USING (load_id) "
+                                                     "WHERE l.source_file LIKE '%govt_2013-02.csv'")
+    assert (status, rows_read) == ("refused", 0) and "not a regular file" in detail
+    # files moved: the inbox is empty, the loaded ones in loaded/, the garbage and the pipe in refused/
+    assert [p for p in cfg.inbox.iterdir() if not p.is_dir()] == []
     assert sorted(p.name for p in cfg.loaded.iterdir()) == [p.name for p in delivered]
-    assert [p.name for p in cfg.refused.iterdir()] == [garbage.name]
+    assert sorted(p.name for p in cfg.refused.iterdir()) == [garbage.name, pipe.name]
     # built, realised: every day not held back has a zero curve and the full forward surface
     per_day = {name: len(c.forward_starts) * len(c.forward_tenors) for name, c in cfg.curves.items()}
     for name, n_fwd in per_day.items():
