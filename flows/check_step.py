@@ -16,7 +16,7 @@ from zoneinfo import ZoneInfo
 import numpy as np
 import pandas as pd
 
-from pipeline.checks import curve_checks, inversion_episodes, late_curve, pairs_inverted_first
+from pipeline.checks import CHECKS, curve_checks, inversion_episodes, late_curve, pairs_inverted_first
 from pipeline.config import Config
 from warehouse.connect import writer
 from warehouse.frames import read_quote_panel
@@ -25,7 +25,8 @@ from warehouse.query import fetch_value
 
 __all__ = ["CURVE_LEVEL_CHECKS", "CheckSummary", "accept_day", "note_late_curves", "run_checks"]
 
-CURVE_LEVEL_CHECKS = ("missing_day", "missing_tenor", "stale_curve", "jump", "inversion")
+# the findings a re-check closes and raises afresh, as the checks declare them
+CURVE_LEVEL_CHECKS = tuple(c.name for c in CHECKS if c.rechecked)
 CONTEXT_DAYS = 300  # observed days before the first day checked: history for the outlier test
 
 

@@ -19,16 +19,13 @@ from concurrent.futures import ProcessPoolExecutor
 from pathlib import Path
 
 from pipeline.config import Config
+from pipeline.errors import UserError
 from pipeline.intake import load_findings, prepare_many, route_curve, validate_intakes
 from pipeline.readers import ReadLimits, ReadResult, read_rate_file
 from warehouse.connect import one_thread, writer
 from warehouse.loads import FileBatch, Loader, LoadOutcome, file_batch
 
 __all__ = ["UserError", "load_files", "prepare_files"]
-
-
-class UserError(RuntimeError):
-    """A mistake in what the user asked for; the message is one line."""
 
 
 class _NotRegular(UserError):

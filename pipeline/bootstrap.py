@@ -24,10 +24,13 @@ from __future__ import annotations
 
 from collections.abc import Sequence
 from dataclasses import dataclass
+from typing import TYPE_CHECKING
 
 import numpy as np
 
-from pipeline.config import CurveConfig
+if TYPE_CHECKING:  # the config imports the curve modules
+    from pipeline.config import CurveConfig
+
 from pipeline.dates import BusinessCalendar, add_months, as_days, maturity_dates, unadjusted_maturities, year_fraction
 from pipeline.tenors import Tenor, parse_tenor
 

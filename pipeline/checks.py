@@ -4,7 +4,7 @@ Every check returns a *findings* frame with the columns of the ``findings`` view
 which the caller adds):
 
 ``as_of``      the day the finding is about (a pandas datetime64 column of whole days)
-``check_name`` one of :data:`pipeline.config.CHECK_NAMES`
+``check_name`` one of :data:`CHECKS`
 ``severity``   ``reject`` | ``warn`` | ``info``, from ``cfg.severity[check_name]``
 ``tenor``      canonical label, ``"SHORT/LONG"`` for an inversion pair, or ``None`` for a whole day
 ``detail``     one human-readable line
@@ -24,17 +24,21 @@ is modified.
 from __future__ import annotations
 
 from collections.abc import Sequence
-from typing import Any
+from dataclasses import dataclass
+from typing import TYPE_CHECKING, Any
 
 import numpy as np
 import pandas as pd
 
-from pipeline.config import DEFAULT_SEVERITY, CurveConfig
 from pipeline.dates import as_days
-from pipeline.expectations import to_dates
 from pipeline.tenors import parse_tenor
 
+if TYPE_CHECKING:  # the config imports this module's registry
+    from pipeline.config import CurveConfig
+
 __all__ = [
+    "CHECKS",
+    "Check",
     "FINDING_COLUMNS",
     "EPISODE_COLUMNS",
     "curve_checks",
@@ -50,6 +54,36 @@ __all__ = [
     "stale_curves",
 ]
 
+
+
+@dataclass(frozen=True)
+class Check:
+    """A check's declaration: its ``findings.check_name``, the severity it has unless
+    ``checks.severity.<name>`` says otherwise, what raises it, and whether ``afterward check`` closes
+    its open findings on the days it re-checks (``rechecked``) so they are raised afresh."""
+
+    name: str
+    severity: str
+    raised_by: str          # load | check | build | daily
+    rechecked: bool = False
+
+
+# Every check, once. The config derives its keys and defaults from this; the check step derives which
+# findings a re-check closes. A new check is one line here and its function below (or in intake).
+CHECKS = (
+    Check("unparseable", "reject", "load"),            # pipeline.readers / pipeline.expectations
+    Check("out_of_range", "reject", "load"),           # pipeline.expectations
+    Check("duplicate", "warn", "load"),                # pipeline.intake
+    Check("missing_day", "warn", "check", rechecked=True),
+    Check("missing_tenor", "warn", "check", rechecked=True),
+    Check("stale_curve", "warn", "check", rechecked=True),
+    Check("jump", "reject", "check", rechecked=True),
+    Check("inversion", "info", "check", rechecked=True),
+    Check("negative_forward", "warn", "build"),        # curve_shape_checks, after a build
+    Check("non_monotone_discount", "warn", "build"),
+    Check("late_curve", "warn", "daily"),              # late_curve, by the daily job
+)
+DEFAULT_SEVERITY = {c.name: c.severity for c in CHECKS}
 FINDING_COLUMNS = ("as_of", "check_name", "severity", "tenor", "detail")
 EPISODE_COLUMNS = ("short_tenor", "long_tenor", "first_day", "last_day", "days", "deepest_bp")
 
@@ -610,6 +644,12 @@ def curve_shape_checks(as_of: Any, times: Any, discount_factors: Any, cfg: Curve
 
 # --- duplicates within a file ---------------------------------------------------------------------
 
+def _to_dates(values: pd.Series) -> pd.Series:
+    from pipeline.expectations import to_dates  # the row expectations' date reading (imports the config)
+
+    return to_dates(values)
+
+
 def duplicate_findings(rows: pd.DataFrame, cfg: CurveConfig | None = None) -> pd.DataFrame:
     """``duplicate`` findings: the same (day, tenor) more than once in one file with different rates.
 
@@ -624,7 +664,7 @@ def duplicate_findings(rows: pd.DataFrame, cfg: CurveConfig | None = None) -> pd
     if len(rows) == 0 or not need <= set(rows.columns):
         return empty_findings()
     sub = pd.DataFrame({
-        "as_of": to_dates(rows["as_of"]).to_numpy(),
+        "as_of": _to_dates(rows["as_of"]).to_numpy(),
         "tenor": rows["tenor"].astype(object).to_numpy(),
         "rate": pd.to_numeric(rows["rate"], errors="coerce").to_numpy(dtype=float),
         "line": rows["line"].to_numpy() if "line" in rows else np.arange(1, len(rows) + 1),

@@ -15,7 +15,12 @@ from typing import Any
 
 import numpy as np
 
+from pipeline.checks import CHECKS, DEFAULT_SEVERITY
+from pipeline.compounding import COMPOUNDINGS, compounding_frequency
+from pipeline.curves.build import QUOTE_KINDS
+from pipeline.curves.methods import METHOD_NAMES
 from pipeline.dates import DAY_COUNTS, WEEKDAYS, BusinessCalendar
+from pipeline.errors import ConfigError
 from pipeline.readers import DEFAULT_MISSING, ReadOptions
 from pipeline.tenors import Tenor, TenorError, parse_tenor
 
@@ -35,46 +40,16 @@ __all__ = [
     "parse_config",
 ]
 
-QUOTE_KINDS = ("zero", "par", "discount", "simple")
-COMPOUNDINGS = ("continuous", "annual", "semiannual", "quarterly", "monthly", "simple")
 COUPON_FREQUENCIES = ("annual", "semiannual", "quarterly", "monthly")
 # other spellings of a day count that name the same convention
 _DAY_COUNT_ALIASES = {"act/act isda": "ACT/ACT", "act/act (isda)": "ACT/ACT", "actual/actual (isda)": "ACT/ACT",
                       "act/365 fixed": "ACT/365F", "act/365f": "ACT/365F"}
 UNITS = ("percent", "decimal", "bp")
-INTERPOLATIONS = ("linear_zero", "log_linear_discount", "monotone_convex", "cubic_zero", "nss")
+INTERPOLATIONS = METHOD_NAMES                       # derived from the registered methods
 FREQUENCIES = ("daily", "monthly")
 DATE_FORMATS = ("iso", "day_first", "month_first")
 SEVERITIES = ("reject", "warn", "info")
-CHECK_NAMES = (
-    "unparseable", "out_of_range", "duplicate", "missing_day", "missing_tenor", "stale_curve",
-    "jump", "inversion", "negative_forward", "non_monotone_discount", "late_curve",
-)
-DEFAULT_SEVERITY = {
-    "unparseable": "reject",
-    "out_of_range": "reject",
-    "duplicate": "warn",
-    "missing_day": "warn",
-    "missing_tenor": "warn",
-    "stale_curve": "warn",
-    "jump": "reject",
-    "inversion": "info",
-    "negative_forward": "warn",
-    "non_monotone_discount": "warn",
-    "late_curve": "warn",
-}
-_FREQ = {"continuous": None, "simple": 0, "annual": 1, "semiannual": 2, "quarterly": 4, "monthly": 12}
-
-
-class ConfigError(ValueError):
-    """A bad configuration; the message is one line naming the key and what is allowed."""
-
-
-def compounding_frequency(compounding: str) -> int | None:
-    """Payments a year for ``compounding``: ``None`` continuous, ``0`` simple, else 1, 2, 4 or 12."""
-    return _FREQ[compounding]
-
-
+CHECK_NAMES = tuple(c.name for c in CHECKS)      # declared once, beside the checks
 @dataclass(frozen=True)
 class CurveConfig:
     """One curve's conventions, as written under ``[curves.NAME]``."""

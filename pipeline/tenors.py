@@ -12,11 +12,9 @@ from __future__ import annotations
 import re
 from dataclasses import dataclass
 
+from pipeline.errors import TenorError
+
 __all__ = ["Tenor", "TenorError", "parse_tenor", "canonical_label"]
-
-
-class TenorError(ValueError):
-    """A label that is not a tenor. The message names the label."""
 
 
 _UNIT_WORDS = {

@@ -17,22 +17,11 @@ from pathlib import Path
 
 import duckdb
 
+from pipeline.errors import StoreError, StoreLocked, StoreMissing
 from warehouse.schema import apply_schema, schema_version
 
 __all__ = ["StoreError", "StoreLocked", "StoreMissing", "connect", "held", "one_thread", "reader", "transaction",
            "writer"]
-
-
-class StoreError(RuntimeError):
-    """A problem with the store that the user can act on; the message is one line."""
-
-
-class StoreLocked(StoreError):
-    """Another process holds the store's write lock."""
-
-
-class StoreMissing(StoreError):
-    """No store at the configured path."""
 
 
 _LOCK = re.compile(r"lock", re.IGNORECASE)

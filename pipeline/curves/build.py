@@ -9,32 +9,25 @@ exception is the NSS fit, which visits days in date order (see :mod:`pipeline.cu
 from __future__ import annotations
 
 from collections.abc import Sequence
+from typing import TYPE_CHECKING
 
 import numpy as np
 
 from pipeline.bootstrap import bootstrap_par
 from pipeline.compounding import to_continuous
-from pipeline.config import INTERPOLATIONS, QUOTE_KINDS, CurveConfig
 from pipeline.curves.base import Block, CurveSet
-from pipeline.curves.cubic_zero import CubicZeroBlock
-from pipeline.curves.linear_zero import LinearZeroBlock
-from pipeline.curves.log_linear_discount import LogLinearDiscountBlock
-from pipeline.curves.monotone_convex import MonotoneConvexBlock
+from pipeline.curves.methods import BLOCKS, METHOD_NAMES, NSS_BOOTSTRAP_METHOD
 from pipeline.curves.nss import NSSBlock, fit_nss
 from pipeline.dates import as_days, maturity_dates, year_fraction
 from pipeline.tenors import Tenor, parse_tenor
 
+if TYPE_CHECKING:  # the config imports the registered methods
+    from pipeline.config import CurveConfig
+
 __all__ = ["BLOCKS", "build_curves", "curves_from_nodes", "node_zero_rates", "nss_curves"]
 
-BLOCKS: dict[str, type[Block]] = {
-    "linear_zero": LinearZeroBlock,
-    "log_linear_discount": LogLinearDiscountBlock,
-    "monotone_convex": MonotoneConvexBlock,
-    "cubic_zero": CubicZeroBlock,
-}
-# NSS is fitted to zero rates; when those come from par quotes they are bootstrapped with this method
-NSS_BOOTSTRAP_METHOD = "monotone_convex"
 MIN_QUOTES = 2
+QUOTE_KINDS = ("zero", "par", "discount", "simple")   # what a curve's numbers are (the config's ``quote``)
 
 
 def node_zero_rates(quotes: np.ndarray, times: np.ndarray, cfg: CurveConfig) -> np.ndarray:
@@ -77,7 +70,7 @@ def build_curves(
         :mod:`pipeline.bootstrap`); ``discount`` factors; ``simple`` money-market rates.
     cfg : the curve's conventions: ``day_count``, ``calendar``, ``compounding``, ``quote``, and
         ``interpolation`` unless ``method`` is given.
-    method : one of ``pipeline.config.INTERPOLATIONS``; overrides ``cfg.interpolation``.
+    method : one of ``pipeline.curves.methods.METHOD_NAMES``; overrides ``cfg.interpolation``.
     warm_start : NSS only: a ``(6,)`` parameter vector (the previous built day's) to start from.
 
     Maturities are ``maturity_dates(as_of, tenor, cfg.calendar)``; node times are
@@ -86,8 +79,8 @@ def build_curves(
     bootstrap does not converge or when an NSS fit fails. Inputs are never modified.
     """
     method = method or cfg.interpolation
-    if method not in INTERPOLATIONS:
-        raise ValueError(f"unknown interpolation {method!r}; allowed: {', '.join(INTERPOLATIONS)}")
+    if method not in METHOD_NAMES:
+        raise ValueError(f"unknown interpolation {method!r}; allowed: {', '.join(METHOD_NAMES)}")
     if cfg.quote not in QUOTE_KINDS:
         raise ValueError(f"unknown quote kind {cfg.quote!r}; allowed: {', '.join(QUOTE_KINDS)}")
     days = as_days(as_of).reshape(-1)
