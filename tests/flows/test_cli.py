@@ -319,3 +319,40 @@ def test_a_verbatim_duplicate_is_rejected_without_a_finding_a_conflicting_one_wi
     assert [(str(d), c, t) for d, c, t in findings] == [("2031-01-03", "duplicate", "5Y")]
     # the verbatim repeat's first line is kept; neither conflicting value is
     assert [(str(d), r) for d, _, r in kept] == [("2031-01-02", pytest.approx(0.045))]
+
+
+def test_which_rejected_rows_raise_a_finding(project):
+    """The README: a rate outside the plausible band is rejected and its day gets an out_of_range finding;
+    a tenor the curve does not list, or a date that does not parse, is rejected with no finding."""
+    import duckdb
+
+    (project / "govt_2031-02.csv").write_text(
+        "date,3M,7Y\n"
+        "2031-02-03,4.10,4.90\n"   # 7Y is a tenor, but not one of curves.govt.tenors
+        "2031-02-04,99,\n"          # 99 % is outside the band of -5 % to +40 %
+        "2031-02-31,4.10,\n")       # no such day
+    proc = run_cli("load", "govt_2031-02.csv", cwd=project)
+    assert proc.returncode == 1 and "read 4, accepted 1, rejected 3" in proc.stdout
+    with duckdb.connect(str(project / "store.duckdb"), read_only=True) as con:
+        rejected = con.execute("SELECT line, reason FROM rejected_rows ORDER BY line").fetchall()
+        findings = con.execute("SELECT as_of, check_name, tenor FROM findings").fetchall()
+    assert [line for line, _ in rejected] == [2, 3, 4]
+    assert "unknown tenor: 7Y" in rejected[0][1] and "rate 0.99 outside" in rejected[1][1]
+    assert [(str(d), c, t) for d, c, t in findings] == [("2031-02-04", "out_of_range", "3M")]
+
+
+def test_a_what_if_build_goes_to_forward_built_under_its_scenario_and_leaves_forwards(project):
+    """The README's views table: ``build --method M`` writes scenario ``what-if:M`` into forward_built."""
+    (project / "govt_2031-01.csv").write_text(GOOD)
+    run_cli("load", "govt_2031-01.csv", cwd=project)
+    assert run_cli("build", cwd=project).returncode == 0
+    query = ("SELECT scenario, count(*) AS n FROM forward_built WHERE curve = 'govt' GROUP BY ALL ORDER BY ALL")
+    before = run_cli("sql", query, "--format", "csv", cwd=project).stdout
+    official = run_cli("sql", "SELECT * FROM forwards ORDER BY ALL", "--format", "csv", cwd=project).stdout
+    proc = run_cli("build", "--method", "linear_zero", cwd=project)
+    assert proc.returncode == 0 and "what-if:linear_zero" in proc.stdout, proc.stdout + proc.stderr
+    after = run_cli("sql", query, "--format", "csv", cwd=project).stdout
+    n = before.splitlines()[1].split(",")[1]  # SMALL_CONFIG: 3 starts x 2 tenors on the one day
+    assert before.splitlines() == ["scenario,n", f"official,{n}"] and n == "6"
+    assert after.splitlines() == ["scenario,n", f"official,{n}", f"what-if:linear_zero,{n}"]
+    assert run_cli("sql", "SELECT * FROM forwards ORDER BY ALL", "--format", "csv", cwd=project).stdout == official
