@@ -198,14 +198,14 @@ def _guard_sql(query: str) -> None:
         raise _Exit(f"SQL error: {str(exc).splitlines()[0]}", 2) from None
     if not statements:
         raise _Exit("no SQL statement given", 2)
-    if len(statements) > 1:
-        # DuckDB's own splitter: a ';' inside a string literal or a comment does not count, a trailing one is fine
-        raise _Exit(f"one statement at a time: the query holds {len(statements)} statements", 2)
-    for st in statements:
+    for st in statements:  # a write anywhere in the text is named as such
         kind = kind_of(st)
         if kind not in _ALLOWED_STATEMENTS:
             raise _Exit(f"refused: {kind} statements are not allowed; 'afterward sql' is read-only "
                         "(queries only)", 2)
+    if len(statements) > 1:
+        # DuckDB's own splitter: a ';' inside a string literal or a comment does not count, a trailing one is fine
+        raise _Exit(f"one statement at a time: the query holds {len(statements)} statements", 2)
 
 
 @app.command()
