@@ -442,7 +442,8 @@ class BackfillSummary:
     def table(self) -> list[dict]:
         """One row per curve, JSON-ready (for the artifact)."""
         return [{"curve": name, "days_built": int(c["days_built"]), "days_failed": int(c["failed"]),
-                 "forwards_built": int(c["forwards"]), "chunks": int(c["chunks"]),
+                 "days_held": int(c.get("held", 0)), "forwards_built": int(c["forwards"]),
+                 "chunks": int(c["chunks"]),
                  "outcomes_realized": int(c.get("realized", 0)), "first_day": self.first or "",
                  "last_day": self.last or ""} for name, c in self.curves.items()]
 
@@ -484,6 +485,8 @@ def backfill(config_path: str, first: str | None = None, last: str | None = None
             info["days_built"] += got["days_built"]
             info["forwards"] += got["forwards"]
             info["withdrawn"] = info.get("withdrawn", 0) + got.get("withdrawn", 0)
+            # the build step's count, after the checks: days in the range an open reject finding holds back
+            info["held"] = info.get("held", 0) + got.get("held", 0)
         with stage("realize"):
             realized = realize_forwards(cfg, name)
         summary.realized += realized.realized

@@ -234,7 +234,8 @@ def cli_backfill(config_path: Path, first: str | None, last: str | None, workers
             flow_seconds = time.perf_counter() - t
     for name, c in summary.curves.items():
         failed = f", {c['failed']} could not be built" if c.get("failed") else ""
-        console.print(f"{name}: built {c['days_built']:,} day(s), {c['forwards']:,} forwards{failed}, "
+        held = f", {c['held']:,} held back by reject findings" if c.get("held") else ""
+        console.print(f"{name}: built {c['days_built']:,} day(s), {c['forwards']:,} forwards{failed}{held}, "
                       f"{c.get('realized', 0):,} outcomes realised")
     console.print(f"backfill {first or 'start'}..{last or 'end'} on {mode}: {summary.chunks} chunk(s), "
                   f"{summary.days_built:,} day(s) built")

@@ -6,6 +6,7 @@ import csv
 import io
 import json
 import math
+import os
 from datetime import date, datetime
 from pathlib import Path
 from typing import Any
@@ -34,14 +35,23 @@ def _plain(value: Any) -> Any:
     return value
 
 
+def _part(out: Path) -> Path:
+    return out.with_name(out.name + ".part")
+
+
 def write_result(table: pa.Table, fmt: str, out: Path | None, console) -> None:  # noqa: ANN001
-    """Write an Arrow table as ``table`` (rich), ``csv``, ``json`` (records) or ``parquet``."""
+    """Write an Arrow table as ``table`` (rich), ``csv``, ``json`` (records) or ``parquet``.
+
+    ``out`` is written beside itself and renamed into place, so a failed write leaves any earlier file as it
+    was (whether it may be replaced is the caller's decision).
+    """
     if fmt == "parquet":
         import pyarrow.parquet as pq
 
         assert out is not None
-        pq.write_table(table, out)
-        console.print(f"wrote {table.num_rows} rows to {out}")
+        pq.write_table(table, _part(out))
+        os.replace(_part(out), out)
+        console.print(f"wrote {table.num_rows} rows to {out}", markup=False)
         return
     rows = table.to_pylist()
     if fmt == "json":
@@ -74,8 +84,9 @@ def write_result(table: pa.Table, fmt: str, out: Path | None, console) -> None: 
         Console(file=buf, width=200).print(t)
         text = buf.getvalue()
     if out is not None:
-        out.write_text(text, encoding="utf-8")
-        console.print(f"wrote {table.num_rows} rows to {out}")
+        _part(out).write_text(text, encoding="utf-8")
+        os.replace(_part(out), out)
+        console.print(f"wrote {table.num_rows} rows to {out}", markup=False)
     else:
         print(text, end="" if text.endswith("\n") else "\n")
 

@@ -10,6 +10,7 @@ import os
 import re
 import tomllib
 from dataclasses import dataclass, field
+from datetime import date, datetime
 from pathlib import Path
 from typing import Any
 
@@ -208,16 +209,31 @@ def _month_tenors(value: Any, key: str, *, allow_zero: bool) -> tuple[Tenor, ...
     return tenors
 
 
+_ISO_DAY = re.compile(r"[0-9]{4}-[0-9]{2}-[0-9]{2}")
+
+
+def _iso_day(text: str) -> np.datetime64 | None:
+    """``YYYY-MM-DD`` exactly, as a day; None otherwise (numpy alone would read ``2031`` as 1 January
+    and ``NaT`` as no date)."""
+    if not _ISO_DAY.fullmatch(text):
+        return None
+    try:
+        return np.datetime64(text, "D")
+    except ValueError:  # 2031-02-30
+        return None
+
+
 def _holidays(cal: dict[str, Any], base: Path, where: str) -> list[np.datetime64]:
     out: list[np.datetime64] = []
     listed = cal.get("holidays", [])
     if not isinstance(listed, list):
         raise ConfigError(f"{where}calendar.holidays must be a list of ISO dates")
     for v in listed:
-        try:
-            out.append(np.datetime64(str(v), "D"))
-        except ValueError:
-            raise ConfigError(f"{where}calendar.holidays: {v!r} is not an ISO date (YYYY-MM-DD)") from None
+        # a quoted "2031-12-25" or a bare TOML date 2031-12-25 (str() gives the same text)
+        day = _iso_day(str(v)) if isinstance(v, str | date) and not isinstance(v, datetime) else None
+        if day is None:
+            raise ConfigError(f"{where}calendar.holidays: {v!r} is not an ISO date (YYYY-MM-DD)")
+        out.append(day)
     if "holidays_file" in cal:
         hp = Path(str(cal["holidays_file"]))
         hp = hp if hp.is_absolute() else base / hp
@@ -227,10 +243,10 @@ def _holidays(cal: dict[str, Any], base: Path, where: str) -> list[np.datetime64
             text = line.split(",")[0].strip()
             if not text or text.startswith("#") or text.lower() in ("date", "holiday"):
                 continue
-            try:
-                out.append(np.datetime64(text, "D"))
-            except ValueError:
-                raise ConfigError(f"{hp}:{n}: {text!r} is not an ISO date (YYYY-MM-DD)") from None
+            day = _iso_day(text)
+            if day is None:
+                raise ConfigError(f"{hp}:{n}: {text!r} is not an ISO date (YYYY-MM-DD)")
+            out.append(day)
     return out
 
 

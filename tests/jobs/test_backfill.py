@@ -183,13 +183,44 @@ def test_a_day_the_checks_hold_back_is_not_stored_though_its_chunk_was_computed_
     flow_cfg, plain_cfg = configs
     done = backfill.with_options(task_runner=task_runner_for(1))(config_path=str(flow_cfg.path))
     run_checks(plain_cfg)
-    run_build(plain_cfg)
+    plain = run_build(plain_cfg)
     with reader(flow_cfg.store_path) as con:
         held = {str(d) for (d,) in con.execute("SELECT as_of FROM held_days WHERE curve = 'govt'").fetchall()}
         built = {str(d) for (d,) in con.execute("SELECT DISTINCT as_of FROM zero_rates WHERE curve = 'govt'"
                                                    ).fetchall()}
     assert "2012-06-14" in held and not held & built
+    # the backfill counts the days held back as the build step does
+    assert done.curves["govt"]["held"] == plain.curves["govt"]["held"] == len(held)
     assert done.caught_up == 0 and not done.curves["govt"].get("withdrawn")  # nothing stored to withdraw
     for view, cols in (("zero_rates", ZERO_COLS), ("forwards", FWD_COLS), ("finding", FINDING_COLS)):
         pd.testing.assert_frame_equal(rows(flow_cfg, view, cols), rows(plain_cfg, view, cols), check_exact=True,
                                       obj=view)
+
+
+def test_the_backfill_command_says_how_many_days_reject_findings_held_back(loaded_store, tmp_path):
+    """``afterward backfill`` prints, per curve, the days held back by reject findings, as ``build`` does."""
+    from flows.jobs import cli_backfill
+
+    cfg = copy_project(loaded_store, tmp_path, "held")
+    # a restated govt day with its 5Y quote 300 bp off: a jump, which the checks reject
+    with reader(cfg.store_path) as con:
+        day = con.sql("SELECT tenor, rate FROM quotes WHERE curve = 'govt' AND as_of = '2012-06-14'"
+                      ).to_arrow_table().to_pandas()
+    rates = dict(zip(day["tenor"], day["rate"], strict=True))
+    rates["5Y"] += 0.03
+    fix = tmp_path / "govt_2012-06-14-jump.csv"
+    fix.write_text("date," + ",".join(rates) + "\n2012-06-14," + ",".join(f"{100 * r:.4f}" for r in rates.values())
+                   + "\n")
+    assert {o.status for o in load_files(cfg, [fix])} == {"loaded"}
+    console = Console(record=True, width=200)
+    assert cli_backfill(cfg.path, None, None, 1, None, console) == 0, console.export_text()
+    text = console.export_text()
+    with reader(cfg.store_path) as con:
+        held = dict(con.execute("SELECT curve, count(*) FROM held_days GROUP BY curve").fetchall())
+    assert held.get("govt")
+    for name in cfg.curves:
+        line = next(x for x in text.splitlines() if x.startswith(f"{name}: built"))
+        if held.get(name):
+            assert f", {held[name]:,} held back by reject findings" in line, line
+        else:
+            assert "held back" not in line, line
