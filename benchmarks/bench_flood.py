@@ -8,7 +8,7 @@ five quotes a line, all but three rejected as duplicates) at 50,000, 100,000 and
 long-layout CSV of 1,000,000 lines of one (day, 3M) with values that differ.
 
 Timed, median of ``--repeat`` runs, each a fresh Python process on a fresh store, loading the one file
-through ``flows.steps.load_files`` (read, intake, duplicates, the Great Expectations row suite, one
+through ``flows.load_step.load_files`` (read, intake, duplicates, the Great Expectations row suite, one
 transaction):
 
 * ``load s``: ``load_files`` itself, imports done - what the issue's bound is about;
@@ -52,7 +52,7 @@ CHILD = r"""
 import json, sys, time
 from pathlib import Path
 import great_expectations  # noqa: F401  (paid once per process; not part of the load)
-import flows.steps as steps
+import flows.load_step as steps
 from pipeline.config import load_config
 cfg = load_config(sys.argv[1])
 t0 = time.perf_counter()

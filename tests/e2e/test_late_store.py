@@ -7,7 +7,7 @@ from datetime import datetime
 import duckdb
 
 from flows.check_step import note_late_curves, run_checks
-from flows.steps import load_files
+from flows.load_step import load_files
 from pipeline.config import load_config
 
 JAN = "date,3M,1Y,2Y,5Y,10Y\n2031-01-02,4.10,4.20,4.30,4.50,4.80\n2031-01-03,4.11,4.21,4.31,4.51,4.81\n"

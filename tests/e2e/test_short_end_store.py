@@ -11,7 +11,7 @@ import pytest
 import QuantLib as ql
 
 from flows.build_step import run_build
-from flows.steps import load_files
+from flows.load_step import load_files
 from pipeline.config import load_config
 from tests.quantlib_ref import np_date, ql_date
 

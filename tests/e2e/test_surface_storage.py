@@ -13,13 +13,14 @@ import duckdb
 import numpy as np
 import pytest
 
-from flows.build_step import _shape_findings, run_build
+from flows.build_step import run_build
 from flows.check_step import accept_day, run_checks
-from flows.steps import load_files
+from flows.load_step import load_files
 from pipeline.checks import curve_shape_checks
 from pipeline.config import CurveConfig
 from pipeline.curves import build_curves
 from pipeline.dates import BusinessCalendar
+from pipeline.surfaces import _shape_findings
 from tests.e2e.stores import Project, clone_project, make_project, write_wide_csv
 from warehouse.connect import writer
 from warehouse.schema import SCHEMA_FILES

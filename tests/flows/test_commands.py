@@ -20,7 +20,7 @@ import pytest
 
 from flows.build_step import run_build
 from flows.check_step import run_checks
-from flows.steps import load_files
+from flows.load_step import load_files
 from tests.conftest import run_cli
 from tests.e2e.stores import (
     FLAT_HOLIDAYS,

@@ -17,7 +17,7 @@ from pathlib import Path
 
 import pytest
 
-from flows.steps import load_files
+from flows.load_step import load_files
 from pipeline.config import load_config
 from tests.hardening.harness import (
     CONFIG,

@@ -21,7 +21,7 @@ from pathlib import Path
 import pytest
 
 from flows.cli import main
-from flows.steps import load_files
+from flows.load_step import load_files
 from pipeline.config import load_config
 from tests.hardening.harness import CONFIG, run_bounded
 

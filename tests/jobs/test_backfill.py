@@ -10,11 +10,12 @@ import pytest
 from rich.console import Console
 
 from flows.audit_step import run_audit
-from flows.backfill import backfill, compute_chunk, plan_chunks, task_runner_for
+from flows.backfill import backfill, task_runner_for
 from flows.build_step import run_build
 from flows.check_step import run_checks
+from flows.chunks import compute_chunk, plan_chunks
+from flows.load_step import load_files
 from flows.realize_step import run_realize
-from flows.steps import load_files
 from pipeline.config import load_config
 from warehouse.connect import reader
 
@@ -62,7 +63,7 @@ def copy_project(template, tmp_path, name: str):  # noqa: ANN001, ANN201
 
 
 def test_a_two_worker_dask_backfill_writes_exactly_the_single_process_rows(loaded_store, tmp_path):
-    from flows.jobs import cli_backfill
+    from flows.prefect_commands import cli_backfill
 
     dask_cfg = copy_project(loaded_store, tmp_path, "dask")
     single_cfg = copy_project(loaded_store, tmp_path, "single")
@@ -124,7 +125,7 @@ def test_a_chunk_is_pure_computation_on_what_the_plan_read(loaded_store, tmp_pat
 def test_chunks_start_costliest_first(loaded_store, tmp_path):
     # longest-processing-time order (common scheduling practice, no source): the par curve's
     # bootstrap makes its chunks dearer than the zero curve's chunks of as many days
-    from flows.backfill import costliest_first, job_cost
+    from flows.chunks import costliest_first, job_cost
 
     cfg = copy_project(loaded_store, tmp_path, "order")
     jobs = plan_chunks(cfg, None, None, 97)
@@ -140,7 +141,7 @@ def test_the_writer_hands_back_each_curve_once_and_never_stores_a_chunk_twice(lo
     from prefect import flow
     from prefect.utilities.annotations import quote
 
-    from flows.backfill import ChunkArrivals, costliest_first, submit_chunks, write_chunks
+    from flows.chunks import ChunkArrivals, costliest_first, submit_chunks, write_chunks
 
     cfg = copy_project(loaded_store, tmp_path, "writer")
 
@@ -199,7 +200,7 @@ def test_a_day_the_checks_hold_back_is_not_stored_though_its_chunk_was_computed_
 
 def test_the_backfill_command_says_how_many_days_reject_findings_held_back(loaded_store, tmp_path):
     """``afterward backfill`` prints, per curve, the days held back by reject findings, as ``build`` does."""
-    from flows.jobs import cli_backfill
+    from flows.prefect_commands import cli_backfill
 
     cfg = copy_project(loaded_store, tmp_path, "held")
     # a restated govt day with its 5Y quote 300 bp off: a jump, which the checks reject

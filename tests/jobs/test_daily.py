@@ -20,7 +20,7 @@ import pytest
 from rich.console import Console
 
 from flows.daily import COMPLETED, COMPLETED_WITH_FINDINGS, daily, file_away, is_retryable, stable_files
-from flows.steps import load_files
+from flows.load_step import load_files
 from warehouse.connect import StoreLocked, reader
 from warehouse.loads import LoadOutcome
 
@@ -243,7 +243,7 @@ def test_filing_away_keeps_an_earlier_file_of_the_same_name(make_project):
 
 
 def test_afterward_run_prints_the_outcome_and_the_timings_and_exits_1_on_findings(make_project):
-    from flows.jobs import cli_run
+    from flows.prefect_commands import cli_run
 
     cfg = make_project("cli", ())
     (cfg.inbox / "swap_2012-01.parquet").write_bytes(b"PAR1 not really parquet")
@@ -261,7 +261,7 @@ def test_serve_options_use_the_config_schedule_and_cancel_new_runs(make_project)
     from prefect.client.schemas.objects import ConcurrencyLimitStrategy
     from prefect.runner import Runner
 
-    from flows.jobs import serve_options
+    from flows.prefect_commands import serve_options
     from pipeline.config import ConfigError
 
     cfg = make_project("serve", ())
@@ -286,7 +286,7 @@ def test_serve_options_use_the_config_schedule_and_cancel_new_runs(make_project)
 
 
 def test_the_default_schedule_is_weekdays_at_half_past_six(make_project):
-    from flows.jobs import serve_options
+    from flows.prefect_commands import serve_options
 
     cfg = make_project("default-schedule", ())
     assert serve_options(cfg.path)["schedule"].cron == "30 18 * * 1-5"
@@ -295,7 +295,7 @@ def test_the_default_schedule_is_weekdays_at_half_past_six(make_project):
 def test_serve_without_a_prefect_server_explains_how_to_start_one(make_project):
     from prefect.settings import PREFECT_API_URL, temporary_settings
 
-    from flows.jobs import cli_serve
+    from flows.prefect_commands import cli_serve
 
     cfg = make_project("serve-no-server", ())
     console = Console(record=True, width=200)

@@ -26,8 +26,8 @@ from flows.audit_step import run_audit
 from flows.build_step import run_build
 from flows.check_step import run_checks
 from flows.export_step import MARKER, export_views
+from flows.load_step import UserError, load_files
 from flows.realize_step import run_realize
-from flows.steps import UserError, load_files
 from tests.conftest import run_cli
 from warehouse.connect import reader
 

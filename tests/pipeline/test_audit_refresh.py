@@ -70,7 +70,8 @@ def test_folding_the_newer_outcomes_step_by_step_equals_the_whole_record(days):
     premium = term_premium(seen, WINDOW)
     folded_steps = rebuilt = 0
     for lo in range(len(stamps) - 60, len(stamps), days):
-        step = (record["realized_at"] >= stamps[lo]) & (record["realized_at"] <= stamps[min(lo + days, len(stamps)) - 1])
+        hi = stamps[min(lo + days, len(stamps)) - 1]
+        step = (record["realized_at"] >= stamps[lo]) & (record["realized_at"] <= hi)
         new = record.loc[step].reset_index(drop=True)
         seen = pd.concat([seen, new]).sort_values(["start_months", "tenor_months", "as_of"], kind="stable")
         seen = seen.reset_index(drop=True)

@@ -39,7 +39,7 @@ def _intake(cfg, data: bytes, name: str = "govt_x.csv", validate: bool = False):
     result = read_rate_file(data, name)
     [it] = prepare_many([result], cfg, ["govt"])
     if validate:
-        from flows.steps import _gx_validator
+        from flows.load_step import _gx_validator
 
         validate_intakes([it], cfg, _gx_validator)
     return it
