@@ -334,7 +334,8 @@ def test_a_verbatim_duplicate_is_rejected_without_a_finding_a_conflicting_one_wi
     assert [reason for line, reason in rejected if line == 3] == ["duplicate: repeats line 2 with the same value"] * 5
     assert [reason for line, reason in rejected if line == 5 and "repeats" in reason] == [
         "duplicate: repeats line 4 with the same value"] * 4
-    conflicting = [line for line, reason in rejected if "conflicting values 0.045, 0.0455" in reason]
+    conflicting = [line for line, reason in rejected
+                   if "conflicting values (percent) for 5Y on 2 lines: 4.5 on line 4, 4.55 on line 5" in reason]
     assert conflicting == [4, 5]
     assert len(rejected) == 5 + 4 + 2
     # one finding: the conflicting 5Y on 2031-01-03; none for the verbatim repeat
