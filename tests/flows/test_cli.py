@@ -360,7 +360,8 @@ def test_which_rejected_rows_raise_a_finding(project):
         rejected = con.execute("SELECT line, reason FROM rejected_rows ORDER BY line").fetchall()
         findings = con.execute("SELECT as_of, check_name, tenor FROM findings").fetchall()
     assert [line for line, _ in rejected] == [2, 3, 4]
-    assert "unknown tenor: 7Y" in rejected[0][1] and "rate 0.99 outside" in rejected[1][1]
+    assert "unknown tenor: 7Y" in rejected[0][1]
+    assert "rate 99 (percent) outside the plausible band -5 % to 40 %" in rejected[1][1]
     assert [(str(d), c, t) for d, c, t in findings] == [("2031-02-04", "out_of_range", "3M")]
 
 
