@@ -334,7 +334,8 @@ def test_a_verbatim_duplicate_is_rejected_without_a_finding_a_conflicting_one_wi
     assert [reason for line, reason in rejected if line == 3] == ["duplicate: repeats line 2 with the same value"] * 5
     assert [reason for line, reason in rejected if line == 5 and "repeats" in reason] == [
         "duplicate: repeats line 4 with the same value"] * 4
-    conflicting = [line for line, reason in rejected if "conflicting values 0.045, 0.0455" in reason]
+    conflicting = [line for line, reason in rejected
+                   if "conflicting values (percent) for 5Y on 2 lines: 4.5 on line 4, 4.55 on line 5" in reason]
     assert conflicting == [4, 5]
     assert len(rejected) == 5 + 4 + 2
     # one finding: the conflicting 5Y on 2031-01-03; none for the verbatim repeat
@@ -359,7 +360,8 @@ def test_which_rejected_rows_raise_a_finding(project):
         rejected = con.execute("SELECT line, reason FROM rejected_rows ORDER BY line").fetchall()
         findings = con.execute("SELECT as_of, check_name, tenor FROM findings").fetchall()
     assert [line for line, _ in rejected] == [2, 3, 4]
-    assert "unknown tenor: 7Y" in rejected[0][1] and "rate 0.99 outside" in rejected[1][1]
+    assert "unknown tenor: 7Y" in rejected[0][1]
+    assert "rate 99 (percent) outside the plausible band -5 % to 40 %" in rejected[1][1]
     assert [(str(d), c, t) for d, c, t in findings] == [("2031-02-04", "out_of_range", "3M")]
 
 
