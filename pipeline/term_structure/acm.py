@@ -4,9 +4,10 @@ Notation: ``y`` is the month-end panel ``(T, N)`` of continuously compounded zer
 year) at ``n = 1 .. N`` months; ``K`` (default 5) factors. Time is in months.
 
 1. **State.** The first ``K`` principal components of the yields of maturities ``3 .. N`` (the
-   first two are left out, as in the authors' own code), demeaned over the window: the components
-   come from the SVD of the demeaned yields; each is scaled to unit sample variance (``ddof = 1``)
-   and signed so that its loadings average positive. ``X_t = (y_t[3..N] - mean) @ L`` ``(K,)``.
+   first two are left out, as in the authors' own code), demeaned over the window: the leading
+   eigenvectors of the demeaned yields' cross-product (their right singular vectors, what a PCA
+   takes); each is scaled to unit sample variance (``ddof = 1``) and signed so that its loadings
+   average positive. ``X_t = (y_t[3..N] - mean) @ L`` ``(K,)``.
 2. **VAR(1).** ``X_{t+1} = Phi X_t + v_{t+1}``: ``Phi`` is the OLS slope of ``X_{t+1}`` on
    ``(1, X_t)``, the intercept is then set to zero (the state is demeaned), and
    ``v_{t+1} = X_{t+1} - Phi X_t``; ``S0 = cov(v)`` (``ddof = 1``, demeaned) prices the convexity.
@@ -38,7 +39,7 @@ before, so no row depends on a curve later than its own ``as_of``.
 
 from __future__ import annotations
 
-from collections.abc import Sequence
+from collections.abc import Iterator, Sequence
 from dataclasses import dataclass
 
 import numpy as np
@@ -153,16 +154,22 @@ def _top_components(gram: np.ndarray, k: int) -> np.ndarray:
     return vec[:, ::-1]
 
 
-def _window_grams(cut: np.ndarray, ends: np.ndarray) -> np.ndarray:
-    """Cross-products of the demeaned yields of every window ``cut[:e]`` for ``e`` in ``ends``
-    ``(W,)``: ``(W, m, m)``. Running sums of outer products, shifted by the mean of the shortest
-    window (a part of every window, so no window sees later data) to keep cancellation small."""
-    shift = cut[: ends.min()].mean(axis=0)
-    d = cut - shift
-    outer = np.cumsum(d[:, :, None] * d[:, None, :], axis=0)[ends - 1]
-    sums = np.cumsum(d, axis=0)[ends - 1]
-    counts = ends.astype(float)[:, None, None]
-    return outer - sums[:, :, None] * sums[:, None, :] / counts
+def _window_grams(cut: np.ndarray, ends: np.ndarray) -> Iterator[np.ndarray]:
+    """Cross-products ``(m, m)`` of the demeaned yields of each window ``cut[:e]``, ``e`` in
+    ``ends`` (increasing), one after another: running sums of outer products, shifted by the mean
+    of the first window (a part of every window, so no window sees later data) to keep the
+    cancellation in ``sum d d' - (sum d)(sum d)' / e`` small."""
+    first = int(ends[0])
+    d = cut - cut[:first].mean(axis=0)
+    outer = _mm(d[:first].T, d[:first])
+    total = d[:first].sum(axis=0)
+    pos = first
+    for e in ends:  # month by month: each window adds its new month ends to the sums
+        for row in d[pos:e]:
+            outer += np.multiply.outer(row, row)
+            total += row
+        pos = int(e)
+        yield outer - np.multiply.outer(total, total) / float(e)
 
 
 @dataclass(frozen=True)
@@ -277,7 +284,6 @@ def fit_acm(panel: TermPanel, factors: int = DEFAULT_FACTORS, *, price_risk: boo
     return _priced([regs], [panel.as_of[-1]], panel.max_months)[0]
 
 
-
 def realtime_fits(panel: TermPanel, factors: int = DEFAULT_FACTORS,
                   min_months: int = DEFAULT_MIN_MONTHS) -> list[ACMFit]:
     """One fit per month end from the ``min_months``-th on, each from the month ends up to it only
@@ -291,13 +297,13 @@ def realtime_fits(panel: TermPanel, factors: int = DEFAULT_FACTORS,
     if ends.size == 0:
         return []
     grams = _window_grams(panel.zero_cc[:, _SKIP:], ends)
-    regs = [_regressions(panel.zero_cc[:e], follows[: e - 1], k, grams[i])  # one estimate per month end
-            for i, e in enumerate(ends)]
+    regs = [_regressions(panel.zero_cc[:e], follows[: e - 1], k, gram)  # one estimate per month end
+            for e, gram in zip(ends, grams, strict=True)]
     return _priced(regs, [panel.as_of[e - 1] for e in ends], panel.max_months)
 
 
-def _rows(panel: TermPanel, fit_name: str, days: np.ndarray, y: np.ndarray, model: np.ndarray, rn: np.ndarray,
-          through: np.ndarray, keep_cols: np.ndarray) -> pd.DataFrame:
+def _rows(fit_name: str, days: np.ndarray, model: np.ndarray, rn: np.ndarray, through: np.ndarray,
+          keep_cols: np.ndarray) -> pd.DataFrame:
     d, k = days.size, keep_cols.size
     model, rn = model[:, keep_cols], rn[:, keep_cols]
     return pd.DataFrame({
@@ -347,12 +353,11 @@ def model_term_premium(
             rows = np.flatnonzero(which == i)
             if rows.size:
                 model, rn = fit.yields(y[rows])
-                parts.append(_rows(panel, "realtime", days[rows], y[rows], model, rn,
-                                   np.full(rows.size, fit.estimated_through), cols))
+                parts.append(_rows("realtime", days[rows], model, rn, np.full(rows.size, fit.estimated_through), cols))
     if "full" in fits:
         fit = fit_acm(panel, factors)
         model, rn = fit.yields(y)
-        parts.append(_rows(panel, "full", days, y, model, rn, np.full(days.size, fit.estimated_through), cols))
+        parts.append(_rows("full", days, model, rn, np.full(days.size, fit.estimated_through), cols))
     if not parts:
         out = pd.DataFrame({c: [] for c in MODEL_COLUMNS[1:]})
     else:
