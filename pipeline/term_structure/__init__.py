@@ -15,6 +15,7 @@ What a step calls, per curve (each returns a frame with its view's columns)::
 
 from pipeline.term_structure.acm import (
     DEFAULT_FACTORS,
+    DEFAULT_MAX_FIT_RMSE_BP,
     DEFAULT_MIN_MONTHS,
     MIN_MODEL_MONTHS,
     MODEL_COLUMNS,
@@ -45,6 +46,7 @@ from pipeline.term_structure.returns import EXCESS_RETURN_COLUMNS, excess_return
 __all__ = [
     "CP_FACTOR_COLUMNS",
     "DEFAULT_FACTORS",
+    "DEFAULT_MAX_FIT_RMSE_BP",
     "DEFAULT_MAX_MONTHS",
     "DEFAULT_MIN_MONTHS",
     "EH_COLUMNS",

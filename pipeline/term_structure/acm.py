@@ -33,8 +33,13 @@ Daily values apply a fit's mean, loadings and coefficients to each built day's y
 
 **Real time.** :func:`realtime_fits` re-estimates everything at every month end ``M`` from the
 month ends up to ``M`` alone (an expanding window starting with ``min_months`` month ends);
-``estimated_through`` is that month end. A day uses the latest fit estimated through it or
-before, so no row depends on a curve later than its own ``as_of``.
+``estimated_through`` is that month end. A day uses the latest *usable* fit estimated through it
+or before, so no row depends on a curve later than its own ``as_of``. Short windows can give
+estimates no validation team would use: a VAR with an explosive root (the risk-neutral yield then
+has no limit; seen on the demo during its 2001 tightening) or prices of risk that make the model
+miss its own curve by hundreds of bp (seen on the demo with K = 5 on 11-12 years of data, where
+factors 4-5 are interpolation noise). :meth:`ACMFit.problem` names both; such a month end is
+passed over and its days keep the previous usable estimate. The full-sample fit is always shown.
 """
 
 from __future__ import annotations
@@ -51,6 +56,7 @@ from pipeline.term_structure.panel import TermPanel
 
 __all__ = [
     "DEFAULT_FACTORS",
+    "DEFAULT_MAX_FIT_RMSE_BP",
     "DEFAULT_MIN_MONTHS",
     "MIN_MODEL_MONTHS",
     "MODEL_COLUMNS",
@@ -62,6 +68,9 @@ __all__ = [
 
 DEFAULT_FACTORS = 5
 DEFAULT_MIN_MONTHS = 60
+#: an affine model that misses its own curve by more than this (bp, RMS) is not pricing it: a
+#: generous allowance (good fits are a few bp), common practice rather than a published figure
+DEFAULT_MAX_FIT_RMSE_BP = 15.0
 MIN_MODEL_MONTHS = 24
 MODEL_COLUMNS = ("curve", "as_of", "maturity_months", "fit", "model_yield", "risk_neutral_yield", "term_premium",
                  "estimated_through")
@@ -78,7 +87,9 @@ class ACMFit:
     ``(N-2, K)`` map yields of 3 .. N months to the state. ``phi``, ``s0``, ``lambda1`` ``(K, K)``;
     ``lambda0``, ``delta1`` ``(K,)``; ``delta0``, ``sigma2`` floats (monthly units).
     ``a``, ``b`` ``(N,)``, ``(N, K)``: log-price coefficients; ``a_rn``, ``b_rn`` their
-    risk-neutral counterparts. ``factors`` ``(T, K)``: the window's state.
+    risk-neutral counterparts. ``factors`` ``(T, K)``: the window's state. ``phi_radius``: the
+    largest eigenvalue modulus of ``phi``; ``fit_rmse_bp``: root mean square of model yield minus
+    panel yield over the window's month ends and maturities, bp (see :meth:`problem`).
     """
 
     estimated_through: np.datetime64
@@ -99,6 +110,20 @@ class ACMFit:
     b: np.ndarray
     a_rn: np.ndarray
     b_rn: np.ndarray
+    phi_radius: float
+    fit_rmse_bp: float
+
+    def problem(self, max_fit_rmse_bp: float | None = None) -> str | None:
+        """Why this fit should not be used (one line), or ``None``: a VAR that is not stationary
+        (``phi_radius >= 1``: the expected path of the short rate, hence the risk-neutral yield, has
+        no limit), or model yields that miss the window's own panel by more than
+        ``max_fit_rmse_bp`` (default :data:`DEFAULT_MAX_FIT_RMSE_BP`) root mean square."""
+        limit = DEFAULT_MAX_FIT_RMSE_BP if max_fit_rmse_bp is None else max_fit_rmse_bp
+        if not self.phi_radius < 1.0:
+            return f"VAR not stationary (spectral radius {self.phi_radius:.4f})"
+        if not self.fit_rmse_bp <= limit:
+            return f"model yields miss the panel by {self.fit_rmse_bp:.1f} bp RMS (limit {limit:g} bp)"
+        return None
 
     def state(self, zero_cc: np.ndarray) -> np.ndarray:
         """``(D, K)`` state of days with yields ``zero_cc`` ``(D, N)`` (continuous, decimal)."""
@@ -238,8 +263,10 @@ def _regressions(y: np.ndarray, follows: np.ndarray, k: int, gram: np.ndarray | 
                         float(delta[0]), delta[1:])
 
 
-def _priced(regs: list[_Regressions], through: list[np.datetime64], n: int) -> list[ACMFit]:
-    """Step 6 for every window at once, then one :class:`ACMFit` per window."""
+def _priced(regs: list[_Regressions], through: list[np.datetime64], y: np.ndarray) -> list[ACMFit]:
+    """Step 6 for every window at once, then one :class:`ACMFit` per window; window ``i`` is the
+    first ``regs[i].months`` rows of the panel ``y`` ``(T, N)``."""
+    n = y.shape[1]
     if not regs:
         return []
     stack = {name: np.array([getattr(r, name) for r in regs]) for name in
@@ -248,9 +275,17 @@ def _priced(regs: list[_Regressions], through: list[np.datetime64], n: int) -> l
                    stack["s0"], stack["sigma2"], n)
     a_rn, b_rn = _affine(stack["delta0"], stack["delta1"], stack["phi"], np.zeros_like(stack["lambda0"]),
                          stack["s0"], stack["sigma2"], n)
-    return [ACMFit(np.datetime64(t, "D"), r.months, r.pairs, r.mean, r.loadings, r.factors, r.phi, r.s0, r.beta,
-                   r.sigma2, r.lambda0, r.lambda1, r.delta0, r.delta1, a[i], b[i], a_rn[i], b_rn[i])
-            for i, (r, t) in enumerate(zip(regs, through, strict=True))]
+    years = np.arange(1, n + 1, dtype=float) / 12.0
+    fits = []
+    for i, (r, t) in enumerate(zip(regs, through, strict=True)):  # one per window: a few checks each
+        with np.errstate(over="ignore", invalid="ignore"):
+            model = -(a[i] + _mm(r.factors, b[i].T)) / years
+            rmse = float(np.sqrt(np.mean((model - y[: r.months]) ** 2)) * 1e4)
+        radius = float(np.abs(np.linalg.eigvals(r.phi)).max())
+        fits.append(ACMFit(np.datetime64(t, "D"), r.months, r.pairs, r.mean, r.loadings, r.factors, r.phi, r.s0,
+                           r.beta, r.sigma2, r.lambda0, r.lambda1, r.delta0, r.delta1, a[i], b[i], a_rn[i], b_rn[i],
+                           radius, rmse if np.isfinite(rmse) else float("inf")))
+    return fits
 
 
 def _check(panel: TermPanel, factors: int, min_months: int) -> None:
@@ -281,7 +316,7 @@ def fit_acm(panel: TermPanel, factors: int = DEFAULT_FACTORS, *, price_risk: boo
     """
     _check(panel, factors, 2 * int(factors) + 3)
     regs = _regressions(panel.zero_cc, panel.follows(), int(factors), price_risk=price_risk)
-    return _priced([regs], [panel.as_of[-1]], panel.max_months)[0]
+    return _priced([regs], [panel.as_of[-1]], panel.zero_cc)[0]
 
 
 def realtime_fits(panel: TermPanel, factors: int = DEFAULT_FACTORS,
@@ -299,7 +334,7 @@ def realtime_fits(panel: TermPanel, factors: int = DEFAULT_FACTORS,
     grams = _window_grams(panel.zero_cc[:, _SKIP:], ends)
     regs = [_regressions(panel.zero_cc[:e], follows[: e - 1], k, gram)  # one estimate per month end
             for e, gram in zip(ends, grams, strict=True)]
-    return _priced(regs, [panel.as_of[e - 1] for e in ends], panel.max_months)
+    return _priced(regs, [panel.as_of[e - 1] for e in ends], panel.zero_cc)
 
 
 def _rows(fit_name: str, days: np.ndarray, model: np.ndarray, rn: np.ndarray, through: np.ndarray,
@@ -325,14 +360,18 @@ def model_term_premium(
     fits: Sequence[str] = FITS,
     maturities: Sequence[int] | None = None,
     daily: bool = True,
+    max_fit_rmse_bp: float = DEFAULT_MAX_FIT_RMSE_BP,
 ) -> pd.DataFrame:
     """The ``model_term_premium`` view of one curve.
 
     One row per (as_of, maturity_months, fit): ``model_yield``, ``risk_neutral_yield`` and
     ``term_premium`` (decimals a year, continuous; premium = model minus risk-neutral) and
     ``estimated_through`` (the month end the fit's data end on). ``fit = "full"``: the full-sample
-    fit applied to every day. ``fit = "realtime"``: each day under the latest expanding-window fit
-    estimated through that day or before; days before the first such fit have no row.
+    fit applied to every day, whatever :meth:`ACMFit.problem` says of it (check it with
+    :func:`fit_acm`). ``fit = "realtime"``: each day under the latest usable expanding-window fit
+    estimated through that day or before (a month end whose fit has a problem - an explosive VAR,
+    or model yields more than ``max_fit_rmse_bp`` off its own panel - is passed over, so such a
+    day shows an older ``estimated_through``); days before the first usable fit have no row.
     ``daily=False`` gives month ends only. ``maturities``: months to keep (default ``1 .. N``).
     Raises :class:`ModelInputError` (one line) when the panel cannot support the model.
     """
@@ -346,7 +385,9 @@ def model_term_premium(
     days, y = (panel.days, panel.daily_zero_cc) if daily else (panel.as_of, panel.zero_cc)
     parts = []
     if "realtime" in fits:
-        rt = realtime_fits(panel, factors, min_months)
+        # a month end whose estimate has a problem (ACMFit.problem) is passed over: its days keep
+        # the latest usable estimate, and estimated_through says which
+        rt = [f for f in realtime_fits(panel, factors, min_months) if f.problem(max_fit_rmse_bp) is None]
         stamps = np.array([f.estimated_through for f in rt], dtype="datetime64[D]")
         which = np.searchsorted(stamps, days, side="right") - 1
         for i, fit in enumerate(rt):  # one block of days per month-end estimate
