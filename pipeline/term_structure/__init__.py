@@ -9,8 +9,12 @@ What a step calls, per curve (each returns a frame with its view's columns)::
     eh_regressions(panel)              -> eh_regressions   (+ cochrane_piazzesi_factor, eh_verdicts)
     model_term_premium(panel, factors) -> model_term_premium
 
-``panel.skipped_months`` names the months with no built day; :class:`ModelInputError` (a
-``ValueError`` with a one-line message) is what a user's data or settings can cause.
+``panel.skipped_months`` names the months with no built day (``panel.open_month`` a month not yet
+closed); ``fit_acm(panel, factors).problem()`` and ``[f for f in realtime_fits(panel, factors) if
+f.problem()]`` name estimates not to trust (the real-time rows skip those month ends).
+``--full-sample-only`` is ``model_term_premium(panel, factors, fits=("full",))``.
+:class:`ModelInputError` (a ``ValueError`` with a one-line message) is what a user's data or
+settings can cause.
 """
 
 from pipeline.term_structure.acm import (

@@ -201,6 +201,12 @@ def _span(rows: pd.DataFrame) -> str:
     return f"{pd.Timestamp(rows['first_as_of'].min()):%Y-%m} to {pd.Timestamp(rows['last_as_of'].max()):%Y-%m}"
 
 
+def _years(rows: pd.DataFrame) -> str:
+    # overlapping annual returns: the sample holds about n / 12 independent observations, and
+    # HAC tests with persistent regressors are known to over-reject when that is small
+    return f"about {int(rows['n'].min()) // 12} non-overlapping years"
+
+
 def _cs_verdict(rows: pd.DataFrame) -> str:
     b = rows["coef"].to_numpy()
     t1 = (b - 1.0) / rows["se"].to_numpy()
@@ -227,7 +233,8 @@ def _fb_verdict(rows: pd.DataFrame) -> str:
     b = rows["coef"].to_numpy()
     t = rows["hac_t"].to_numpy()
     mats = rows["maturity_months"].to_numpy()
-    span = f"b from {b[0]:.2f} at {int(mats[0])} months to {b[-1]:.2f} at {int(mats[-1])} months, {_span(rows)}"
+    span = (f"b from {b[0]:.2f} at {int(mats[0])} months to {b[-1]:.2f} at {int(mats[-1])} months, {_span(rows)}, "
+            f"{_years(rows)}")
     sig = int(np.sum(np.abs(t) > Z95))
     if sig == 0:
         return (f"on this archive the forward-spot spread does not significantly predict one-year excess "
@@ -249,7 +256,7 @@ def _cp_verdict(rows: pd.DataFrame, factor: pd.DataFrame | None) -> str:
     r2, p = float(factor["r2"].iloc[0]), float(factor["wald_pvalue"].iloc[0])
     told = "predicts" if p < 0.05 else "does not significantly predict"
     return (f"on this archive one factor of forward rates {told} the average one-year excess return "
-            f"(R^2 {r2:.2f}, HAC Wald p = {p:.3g}, {_span(rows)}); its loadings b_n at {list(int(m) for m in mats)} "
+            f"(R^2 {r2:.2f}, HAC Wald p = {p:.3g}, {_span(rows)}, {_years(rows)}); its loadings b_n at {list(int(m) for m in mats)} "
             f"months are {loads} ({shape})" + (": against the expectations hypothesis" if p < 0.05 else ""))
 
 
