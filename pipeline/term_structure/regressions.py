@@ -249,15 +249,16 @@ def _cp_verdict(rows: pd.DataFrame, factor: pd.DataFrame | None) -> str:
     b = rows["coef"].to_numpy()
     mats = rows["maturity_months"].to_numpy()
     loads = ", ".join(f"{v:.2f}" for v in b)
+    months = ", ".join(str(int(m)) for m in mats)
     rising = bool(np.all(np.diff(b) > 0))
     shape = "rising with maturity" if rising else "not monotone in maturity"
     if factor is None or factor.empty:
-        return f"on this archive the single factor's loadings b_n at {list(mats)} months are {loads} ({shape})"
+        return f"on this archive the single factor's loadings b_n at {months} months are {loads} ({shape})"
     r2, p = float(factor["r2"].iloc[0]), float(factor["wald_pvalue"].iloc[0])
     told = "predicts" if p < 0.05 else "does not significantly predict"
     return (f"on this archive one factor of forward rates {told} the average one-year excess return "
-            f"(R^2 {r2:.2f}, HAC Wald p = {p:.3g}, {_span(rows)}, {_years(rows)}); its loadings b_n at {list(int(m) for m in mats)} "
-            f"months are {loads} ({shape})" + (": against the expectations hypothesis" if p < 0.05 else ""))
+            f"(R^2 {r2:.2f}, HAC Wald p = {p:.3g}, {_span(rows)}, {_years(rows)}); its loadings b_n at "
+            f"{months} months are {loads} ({shape})" + (": against the expectations hypothesis" if p < 0.05 else ""))
 
 
 def eh_verdicts(regressions: pd.DataFrame, factor: pd.DataFrame | None = None) -> pd.DataFrame:
