@@ -156,3 +156,13 @@ def test_verdict_lines_follow_the_estimates(test, coefs, ses, words):
     line = eh_verdicts(_frame(test, coefs, ses))["verdict"].iloc[0]
     assert words in line
     assert "\n" not in line
+
+
+def test_cochrane_piazzesi_verdict_reads_the_joint_test():
+    rows = _frame("cochrane_piazzesi", [0.5, 0.9, 1.2], [0.1, 0.1, 0.1])
+    strong = pd.DataFrame({"curve": ["c"], "r2": [0.3], "wald_pvalue": [0.001]})
+    weak = strong.assign(wald_pvalue=[0.4])
+    line = eh_verdicts(rows, strong)["verdict"].iloc[0]
+    assert "predicts the average one-year excess return" in line and "rising with maturity" in line
+    assert line.endswith("against the expectations hypothesis")
+    assert "does not significantly predict" in eh_verdicts(rows, weak)["verdict"].iloc[0]
