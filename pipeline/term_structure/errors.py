@@ -1,0 +1,10 @@
+"""The one error the term-structure lens raises for input a user can fix."""
+
+from __future__ import annotations
+
+__all__ = ["ModelInputError"]
+
+
+class ModelInputError(ValueError):
+    """The input cannot support the requested computation; ``str(err)`` is one line naming the
+    curve and what is missing (too short a longest tenor, too few month ends, a bad setting)."""
