@@ -89,7 +89,7 @@ def make_history(root: Path, years: int) -> tuple[Path, list[Path]]:
     from flows.load_step import load_files
     from flows.realize_step import run_realize
     from pipeline.config import load_config
-    from pipeline.demo_market import demo_config_toml, generate_market
+    from pipeline.demo import demo_config_toml, generate_market
     from warehouse.connect import writer
 
     root.mkdir(parents=True)

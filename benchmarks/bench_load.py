@@ -2,7 +2,7 @@
 
     .venv/bin/python benchmarks/bench_load.py [--repeat 3]
 
-Set-up (not timed): the demo inbox (``pipeline.demo_market.write_demo_inbox``: 360 monthly CSV files
+Set-up (not timed): the demo inbox (``pipeline.demo.write_demo_inbox``: 360 monthly CSV files
 of government par yields in percent, 360 monthly Parquet files of swap zero rates, one restatement
 file; about 15,500 curve-days and 190,000 quotes, with the demo's planted defects).
 
@@ -79,7 +79,7 @@ print(json.dumps({"gx_import": gx_import, "load": load, "cpu": cpu, "phases": ph
 
 def make_inbox(root: Path) -> Path:
     from pipeline.config import load_config
-    from pipeline.demo_market import demo_config_toml, write_demo_inbox
+    from pipeline.demo import demo_config_toml, write_demo_inbox
 
     (root / "afterward.toml").write_text(demo_config_toml(), encoding="utf-8")
     cfg = load_config(root / "afterward.toml")

@@ -15,7 +15,7 @@ __all__ = ["make_demo_folder", "run_demo"]
 
 def make_demo_folder(directory: Path) -> Path:
     """Write the demo's afterward.toml and inbox into ``directory``; returns the config path."""
-    from pipeline.demo_market import demo_config_toml, write_demo_inbox
+    from pipeline.demo import demo_config_toml, write_demo_inbox
 
     directory.mkdir(parents=True, exist_ok=True)
     config_path = directory / "afterward.toml"

@@ -22,7 +22,7 @@ from pipeline.curves.build import QUOTE_KINDS
 from pipeline.curves.methods import METHOD_NAMES
 from pipeline.dates import DAY_COUNTS, WEEKDAYS, BusinessCalendar
 from pipeline.errors import ConfigError
-from pipeline.readers import DEFAULT_MISSING, ReadOptions
+from pipeline.readers.options import DEFAULT_MISSING, ReadOptions
 from pipeline.tenors import Tenor, TenorError, parse_tenor
 
 __all__ = [

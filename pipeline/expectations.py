@@ -35,7 +35,7 @@ import numpy as np
 import pandas as pd
 
 from pipeline.config import CurveConfig
-from pipeline.readers import UNIT_DIVISORS
+from pipeline.readers.options import UNIT_DIVISORS
 from pipeline.wording import band_text, number_text, units_name
 
 __all__ = ["RATE_BANDS", "RowValidation", "rate_band", "suite_name", "to_dates", "validate_rows"]

@@ -15,7 +15,7 @@ from flows.check_step import run_checks
 from flows.load_step import load_files
 from flows.realize_step import run_realize
 from pipeline.config import load_config
-from pipeline.demo_market import demo_config_toml, write_demo_inbox
+from pipeline.demo import demo_config_toml, write_demo_inbox
 from tests.e2e.stores import DemoStore, build_flat_project
 
 

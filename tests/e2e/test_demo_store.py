@@ -1,6 +1,6 @@
 """The demo store end to end: what the invented market's feed leaves in the store after each step.
 
-Independent reference throughout: the demo's manifest (pipeline.demo_market.write_demo_inbox), i.e.
+Independent reference throughout: the demo's manifest (pipeline.demo.write_demo_inbox), i.e.
 the clean generated quotes and the list of defects planted in the files, and the files themselves
 read back with pyarrow / plain text. Recomputations are plain pandas on what the store holds;
 statistics are checked against statsmodels 0.15 (tests/REFERENCES.md #20).
@@ -19,7 +19,7 @@ from statsmodels.tsa.stattools import diebold_mariano_test
 
 from flows.build_step import run_build
 from flows.check_step import accept_day
-from pipeline.demo_market import GOVT_TENORS, SWAP_TENORS, expected_forward_error_bp
+from pipeline.demo import GOVT_TENORS, SWAP_TENORS, expected_forward_error_bp
 from tests.e2e.stores import clone_project
 
 TENORS = {"govt": GOVT_TENORS, "swap": SWAP_TENORS}

@@ -44,7 +44,7 @@ from flows.load_step import load_files
 from flows.realize_step import run_realize
 from flows.report_step import write_report
 from pipeline.config import load_config
-from pipeline.demo_market import demo_config_toml, generate_market, render_feed
+from pipeline.demo import demo_config_toml, generate_market, render_feed
 from pipeline.report import SECTIONS
 from tests.conftest import run_cli
 

@@ -146,7 +146,7 @@ _GOOD = _good_bytes()
 
 # --- the column-wise Parquet path against the cell-by-cell one ------------------------------------
 #
-# A long-layout Parquet file with typed columns is read column-wise (pipeline.readers._typed_long);
+# A long-layout Parquet file with typed columns is read column-wise (pipeline.readers.layouts.read_typed_long);
 # any other goes cell by cell through text. The reference here is that text path run on the same
 # table: both must give the same rows, values, lines and raw text, whatever the table holds.
 
@@ -166,7 +166,8 @@ def test_typed_parquet_reads_as_the_text_path_does(n, data, date_type, rate_type
 
     import pandas as pd
 
-    from pipeline.readers import _long, _table_grid, _typed_long
+    from pipeline.readers.decode import table_grid
+    from pipeline.readers.layouts import read_long, read_typed_long
 
     days = data.draw(st.lists(st.one_of(st.none(), st.integers(-30_000, 40_000)), min_size=n, max_size=n))
     if not data.draw(st.booleans()):
@@ -201,7 +202,7 @@ def test_typed_parquet_reads_as_the_text_path_does(n, data, date_type, rate_type
     pq.write_table(table, buf)
     got = read_rate_file(buf.getvalue(), "f.parquet")
     table = pq.read_table(io.BytesIO(buf.getvalue()))
-    want = _long(_table_grid(table), "iso")
+    want = read_long(table_grid(table), "iso")
     TALLY.property_examples += 1
     assert got.error == want.error and got.layout == want.layout and got.columns == want.columns
     pd.testing.assert_frame_equal(got.rows, want.rows, check_dtype=True, check_exact=True)
@@ -211,7 +212,7 @@ def test_typed_parquet_reads_as_the_text_path_does(n, data, date_type, rate_type
              and set(tenors) <= set(_TENOR_TEXT[:7]) and all(r is None or math.isfinite(r) for r in rates)
              and all(-354285 <= d <= 2932896 for d in days))
     if clean:
-        assert _typed_long(table) is not None
+        assert read_typed_long(table) is not None
 
 
 _SAMPLE_CHARS = st.sampled_from([",", ";", "\t", "|", "\n", "\n", " ", "a", "3M", "4.1", "2031-01-02", '"', "'", "",
@@ -222,7 +223,7 @@ _SAMPLE_CHARS = st.sampled_from([",", ";", "\t", "|", "\n", "\n", " ", "a", "3M"
 @given(parts=st.lists(_SAMPLE_CHARS, max_size=60), repeat=st.integers(1, 6))
 def test_plain_delimiter_agrees_with_the_sniffer(parts, repeat):
     # csv.Sniffer (the standard library) is the reference; the shortcut may decline, never disagree
-    from pipeline.readers import _plain_delimiter, _sniffed_delimiter
+    from pipeline.readers.decode import _plain_delimiter, _sniffed_delimiter
 
     line = "".join(parts)
     for sample in (line, "\n".join([line] * repeat)):
@@ -233,7 +234,7 @@ def test_plain_delimiter_agrees_with_the_sniffer(parts, repeat):
 
 
 def test_plain_delimiter_takes_the_usual_files():
-    from pipeline.readers import _plain_delimiter
+    from pipeline.readers.decode import _plain_delimiter
 
     assert _plain_delimiter("date,3M,1Y\n2031-01-02,4.1,4.2\n2031-01-03,4.1,4.3") == ","
     assert _plain_delimiter("date;3M\n2031-01-02;4,1") is None      # a decimal comma: the sniffer decides

@@ -46,7 +46,7 @@ def rows(cfg, view: str, cols: str) -> pd.DataFrame:  # noqa: ANN001
 @pytest.fixture(scope="module")
 def loaded_store(demo_files, tmp_path_factory):  # noqa: ANN001, ANN201
     """Three demo years loaded (no build yet): the config path of a template project."""
-    from pipeline.demo_market import demo_config_toml
+    from pipeline.demo import demo_config_toml
 
     root = tmp_path_factory.mktemp("backfill-template")
     (root / "afterward.toml").write_text(demo_config_toml(), encoding="utf-8")

@@ -58,7 +58,7 @@ def store(demo_files, tmp_path_factory):  # noqa: ANN001, ANN201
     """Two demo years through every step (no Prefect: export needs only the store). 2002-2003 hold the
     end of the demo's inversion episode and its garbled line, so every contract view has rows."""
     from pipeline.config import load_config
-    from pipeline.demo_market import demo_config_toml
+    from pipeline.demo import demo_config_toml
 
     root = tmp_path_factory.mktemp("export")
     (root / "afterward.toml").write_text(demo_config_toml(), encoding="utf-8")

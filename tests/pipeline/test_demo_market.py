@@ -25,7 +25,7 @@ import pytest
 import QuantLib as ql
 import statsmodels.api as sm
 
-from pipeline import demo_market as dm
+from pipeline import demo as dm
 from pipeline.config import load_config, parse_config
 from pipeline.dates import BusinessCalendar, maturity_dates
 from tests.quantlib_ref import ql_calendar
