@@ -28,7 +28,7 @@ import pandas as pd
 
 from pipeline.config import CurveConfig
 from pipeline.curves import build_curves
-from pipeline.demo_market import GOVT_TENORS, generate_market
+from pipeline.demo import GOVT_TENORS, generate_market
 from pipeline.tenors import parse_tenor
 from pipeline.term_structure import (
     cochrane_piazzesi_factor,

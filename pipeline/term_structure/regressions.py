@@ -1,7 +1,7 @@
 """Classic tests of the expectations hypothesis on the month-end panel, with verdict lines.
 
 All regressions are OLS with Newey-West (Bartlett) standard errors, computed by
-:func:`pipeline.audit_stats.hac_ols` (statsmodels' ``cov_type="HAC"`` without small-sample factor).
+:func:`pipeline.audit.hac.hac_ols` (statsmodels' ``cov_type="HAC"`` without small-sample factor).
 Rates are decimals, continuously compounded; ``n`` is in months. Only month ends that are calendar
 neighbours (or exactly ``h`` months apart) are paired; a skipped month drops the pairs across it.
 
@@ -45,7 +45,7 @@ import numpy as np
 import pandas as pd
 from scipy import stats
 
-from pipeline.audit_stats import hac_ols, wald_pvalue
+from pipeline.audit.hac import hac_ols, wald_pvalue
 from pipeline.term_structure.panel import TermPanel
 from pipeline.term_structure.returns import annual_forwards, excess_return_grid
 

@@ -4,7 +4,7 @@ References: the PyPI package ``pyacm`` (2.x, ``NominalACM``; REFERENCES item 29,
 PITFALLS) given the same month-end panel as ``curve`` with ``curve_m=None`` (a monthly panel
 resamples to itself) and the same K; a Gaussian affine economy simulated here with known prices of
 risk (the pricing recursion of Adrian, Crump & Moench 2013, eq. for A_n, B_n); the invented demo
-market of ``pipeline.demo_market`` (read only).
+market of ``pipeline.demo`` (read only).
 """
 
 from __future__ import annotations
@@ -16,7 +16,7 @@ from pyacm import NominalACM
 
 from pipeline.config import CurveConfig
 from pipeline.curves import build_curves
-from pipeline.demo_market import GOVT_TENORS, generate_market
+from pipeline.demo import GOVT_TENORS, generate_market
 from pipeline.tenors import parse_tenor
 from pipeline.term_structure import (
     MODEL_COLUMNS,
