@@ -456,6 +456,38 @@ def audit(
 
 
 @app.command()
+def model(
+    curve: Annotated[str | None, typer.Option("--curve", metavar="CURVE", help="Only this curve.")] = None,
+    factors: Annotated[int | None, typer.Option("--factors", metavar="K",
+                                                help="Principal components in the model's state (default: "
+                                                     "model.factors, 5).")] = None,
+    max_months: Annotated[int | None, typer.Option("--max-months", metavar="N",
+                                                   help="Longest panel maturity in months (default: "
+                                                        "model.max_months, 120).")] = None,
+    full_sample_only: Annotated[bool, typer.Option("--full-sample-only",
+                                                   help="Only the full-sample fit; keep the real-time rows.")] = False,
+    config: ConfigOption = None,
+) -> None:
+    """The term-structure lens: month-end panel, excess returns, expectations-hypothesis tests, model term premium."""
+    from pipeline.config import MODEL_FACTORS, MODEL_MAX_MONTHS
+
+    for option, value, (lo, hi) in (("--factors", factors, MODEL_FACTORS), ("--max-months", max_months,
+                                                                           MODEL_MAX_MONTHS)):
+        if value is not None and not lo <= value <= hi:
+            raise _Exit(f"{option} {value} is not allowed; allowed: a whole number from {lo} to {hi}", 2)
+    from flows.model_step import run_model
+    from flows.output import print_model
+
+    cfg = _config()
+    if curve is not None:
+        cfg.curve(curve)
+    summary = run_model(cfg, curve, factors, max_months, full_sample_only)
+    print_model(summary, _console())
+    if summary.refused:
+        raise typer.Exit(1)
+
+
+@app.command()
 def report(
     out: Annotated[Path | None, typer.Option("--out", metavar="DIR", help="Folder for the report (default: reports/ "
                                              "beside the config).")] = None,

@@ -1,4 +1,5 @@
-"""The daily job as a Prefect flow: take the new files from the inbox, load, check, build, realize, audit.
+"""The daily job as a Prefect flow: take the new files from the inbox, load, check, build, realize, audit,
+and, when a month has closed since the last estimate, the term-structure lens (the month-end estimate).
 
 Each task is one step (:mod:`flows.tasks`), called unchanged, so the same work runs without Prefect
 (``afterward load``, ``check``, ``build``, ``realize``, ``audit``). The run takes the store's run lock
@@ -30,6 +31,7 @@ from prefect.cache_policies import NO_CACHE
 from flows.daily_summary import COMPLETED, COMPLETED_WITH_FINDINGS, DailySummary, curve_rows, file_record, summarise
 from flows.inbox import PATIENCE_SECONDS, SETTLE_SECONDS, file_away, stable_files
 from flows.load_step import READ_AHEAD_MIN_FILES, reader_process
+from flows.model_step import model_due
 from flows.tasks import (
     build_days,
     check_quotes,
@@ -39,6 +41,7 @@ from flows.tasks import (
     note_late,
     realize_forwards,
     refresh_audit,
+    refresh_model,
     scan_inbox,
 )
 from pipeline.config import Config, load_config
@@ -104,6 +107,9 @@ def _daily(cfg: Config, settle_seconds: float, patience_seconds: float) -> Daily
             built = timed("build", build_days, cfg, con)
             realized = timed("realize", realize_forwards, cfg, con)
             audited = timed("audit", refresh_audit, cfg, con)
+            due = model_due(cfg, con=con)  # the month-end estimate, only when a month has closed since
+            if due:
+                summary.modelled = list(timed("model", refresh_model, cfg, con, due).curves)
             found = findings_since(con, started)
     finally:
         if reader is not None:

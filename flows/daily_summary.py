@@ -19,7 +19,8 @@ class DailySummary:
 
     ``findings`` counts the findings raised during the run by severity (load-time and curve-level);
     ``seconds`` the wall time of each step; ``work_seconds`` the whole flow body (Prefect's own
-    start-up excluded).
+    start-up excluded); ``modelled`` the curves whose term-structure estimate was refreshed (a month
+    had closed since the last one).
     """
 
     status: str = COMPLETED
@@ -29,6 +30,7 @@ class DailySummary:
     findings: dict[str, int] = field(default_factory=dict)
     seconds: dict[str, float] = field(default_factory=dict)
     work_seconds: float = 0.0
+    modelled: list[str] = field(default_factory=list)  # curves whose month-end model estimate was refreshed
 
     def _count(self, status: str) -> int:
         return sum(1 for f in self.files if f["status"] == status)

@@ -13,7 +13,7 @@ from typing import Any
 
 import pyarrow as pa
 
-__all__ = ["neutralise_cell", "print_status", "write_result"]
+__all__ = ["neutralise_cell", "print_model", "print_status", "write_result"]
 
 _FORMULA_START = ("=", "+", "-", "@", "\t", "\r")
 
@@ -182,3 +182,41 @@ def print_audit(results: dict, fmt: str, console, start: int | None = None, teno
                       f"{r['verdict']}")
     console.print("Statistical findings for model validation, not investment advice; overlapping forecasts are "
                   "accounted for with Newey-West standard errors.")
+
+
+def print_model(summary, console) -> None:  # noqa: ANN001
+    """Per curve: the panel (month ends, skipped months), the fits, the latest real-time 2/5/10-year
+    term premium in bp, and the regressions' verdict lines."""
+    import numpy as np
+    from rich.table import Table
+
+    for name, reason in summary.refused.items():
+        console.print(f"{name}: not modelled: {reason}", markup=False)
+    for name, info in summary.curves.items():
+        t = Table(title=f"{name}: term-structure lens (N = {info['max_months']} months, K = {info['factors']})")
+        t.add_column("item")
+        t.add_column("value")
+        t.add_row("month ends in the panel", f"{info['months']:,}")
+        skipped = info["skipped"]
+        t.add_row("skipped months (no built day)",
+                  f"{len(skipped)}: {', '.join(skipped)}" if skipped else "none")
+        if info["open_month"]:
+            t.add_row("left out (not yet closed)", info["open_month"])
+        if info["full_sample_only"]:
+            t.add_row("real-time fits", "not re-estimated (--full-sample-only)")
+        elif info["realtime_skipped"]:
+            t.add_row("real-time fits", info["realtime_skipped"])
+        else:
+            t.add_row("real-time fits", f"{info['realtime_fits']} month-end estimates, {len(info['passed'])} passed "
+                                        f"over as unusable; {info['realtime_used']} in use")
+        t.add_row("full-sample fit", info["full_problem"] or "usable")
+        if info["latest_bp"]:
+            through = np.datetime64(info["latest_through"], "D")
+            head = ", ".join(f"{_label(m)} {bp:.1f}" for m, bp in info["latest_bp"].items())
+            t.add_row(f"real-time term premium on {np.datetime64(info['latest_as_of'], 'D')} (bp)",
+                      f"{head} (estimated through {through})")
+        console.print(t)
+        for line in info["passed"][-3:]:
+            console.print(f"{name}: passed over {line}", markup=False)
+        for line in info["verdicts"]:
+            console.print(f"{name}: {line}", markup=False)

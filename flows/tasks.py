@@ -20,6 +20,7 @@ from flows.build_step import BuildSummary, run_build
 from flows.check_step import CheckSummary, note_late_curves, run_checks
 from flows.inbox import PATIENCE_SECONDS, SETTLE_SECONDS, file_away, stable_files
 from flows.load_step import load_files
+from flows.model_step import ModelSummary, run_model
 from flows.realize_step import RealizeSummary, run_realize
 from pipeline.audit.refresh import WholeAudit
 from pipeline.config import Config
@@ -27,7 +28,8 @@ from pipeline.errors import StoreLocked
 from warehouse.loads import LoadOutcome
 
 __all__ = ["RETRY", "build_days", "check_quotes", "file_away_task", "is_retryable", "load_new_files", "note_late",
-           "read_audit_record", "realize_forwards", "refresh_audit", "scan_inbox", "settle_build", "store_audit"]
+           "read_audit_record", "realize_forwards", "refresh_audit", "refresh_model", "scan_inbox", "settle_build",
+           "store_audit"]
 
 # what a task retries on: a store locked by another process, or the disk / network
 RETRYABLE = (StoreLocked, OSError, duckdb.IOException)
@@ -149,3 +151,25 @@ def store_audit(cfg: Config, con: Con, record: audit_step.CurveRecord, audit: Wh
                 now: object) -> audit_step.AuditRefresh:
     """Store an audit computed elsewhere (:func:`flows.audit_step.store_whole_audit`)."""
     return audit_step.store_whole_audit(cfg, record, audit, now, con=con)
+
+
+@task(name="model", cache_policy=NO_CACHE, **RETRY)
+def refresh_model(cfg: Config, con: Con, curves: list[str]) -> ModelSummary:
+    """Re-estimate the term-structure lens of ``curves`` (those :func:`flows.model_step.model_due`
+    names: a month closed since the last estimate), real-time and full-sample
+    (:func:`flows.model_step.run_model`); a curve the model cannot use yet is logged, not failed."""
+    from pipeline.term_structure import ModelInputError
+
+    out = ModelSummary()
+    log = get_run_logger()
+    for name in curves:
+        try:
+            done = run_model(cfg, name, con=con)
+        except ModelInputError as exc:  # too little history yet: the daily run goes on
+            out.refused[name] = str(exc)
+            log.warning("model: %s", exc)
+            continue
+        out.curves.update(done.curves)
+        info = done.curves[name]
+        log.info("model %s: %d month ends, estimated through %s", name, info["months"], info["latest_through"])
+    return out

@@ -24,6 +24,8 @@ from pipeline.dates import DAY_COUNTS, WEEKDAYS, BusinessCalendar
 from pipeline.errors import ConfigError
 from pipeline.readers.options import DEFAULT_MISSING, ReadOptions
 from pipeline.tenors import Tenor, TenorError, parse_tenor
+from pipeline.term_structure.acm import DEFAULT_FACTORS
+from pipeline.term_structure.panel import DEFAULT_MAX_MONTHS
 
 __all__ = [
     "CHECK_NAMES",
@@ -78,6 +80,8 @@ class CurveConfig:
     late_after: str = "18:00"          # HH:MM in the schedule's time zone: a day's curve is due by then
     coupon_frequency: str | None = None
     read: ReadOptions = field(default_factory=ReadOptions)
+    model_max_months: int = DEFAULT_MAX_MONTHS   # model.max_months: the panel's longest maturity (months)
+    model_factors: int = DEFAULT_FACTORS         # model.factors: principal components in the ACM state
 
     @property
     def frequency_per_year(self) -> int | None:
@@ -255,7 +259,7 @@ def _parse_curve(name: str, t: dict[str, Any], base: Path) -> CurveConfig:
     allowed = {
         "files", "quote", "compounding", "day_count", "units", "interpolation", "tenors", "frequency",
         "calendar", "forward", "realize", "checks", "date_format", "audit", "spot_days", "coupon_frequency",
-        "read",
+        "read", "model",
     }
     _check_keys(t, allowed, w)
     if "tenors" not in t:
@@ -337,6 +341,7 @@ def _parse_curve(name: str, t: dict[str, Any], base: Path) -> CurveConfig:
     window = _number(aud, "premium_window_days", 250, f"{w}audit.", integer=True, minimum=2)
 
     read = _read_options(t.get("read", {}), f"{w}read")
+    max_months, factors = _model(t.get("model", {}), f"{w}model.")
     quote = _choice(t, "quote", QUOTE_KINDS, "zero", w)
     compounding = _choice(t, "compounding", COMPOUNDINGS, "continuous", w)
     coupon_frequency = None
@@ -374,7 +379,30 @@ def _parse_curve(name: str, t: dict[str, Any], base: Path) -> CurveConfig:
         premium_window_days=window,
         coupon_frequency=coupon_frequency,
         read=read,
+        model_max_months=max_months,
+        model_factors=factors,
     )
+
+
+# the model's limits: a panel reaches at most 50 years; the state holds at most 10 components
+# (the published model uses 5; more than a handful fit interpolation noise)
+MODEL_MAX_MONTHS = (24, 600)
+MODEL_FACTORS = (1, 10)
+
+
+def _model(m: Any, w: str) -> tuple[int, int]:
+    """``model.max_months`` and ``model.factors``, whole numbers in their ranges."""
+    if not isinstance(m, dict):
+        raise ConfigError(f"{w[:-1]} must be a table with max_months / factors")
+    _check_keys(m, {"max_months", "factors"}, w)
+    out = []
+    for key, default, (lo, hi) in (("max_months", DEFAULT_MAX_MONTHS, MODEL_MAX_MONTHS),
+                                   ("factors", DEFAULT_FACTORS, MODEL_FACTORS)):
+        value = m.get(key, default)
+        if isinstance(value, bool) or not isinstance(value, int) or not lo <= value <= hi:
+            raise ConfigError(f"{w}{key} = {value!r} is not allowed; allowed: a whole number from {lo} to {hi}")
+        out.append(value)
+    return out[0], out[1]
 
 
 def _day_count(t: dict[str, Any], w: str) -> str:

@@ -44,4 +44,7 @@ realize.tolerance_days = 3           # business days after a target date to look
 checks.jump_bp = 75                  # a day-on-day move larger than this is flagged
 checks.inversion_pairs = [["3M", "10Y"], ["2Y", "10Y"]]
 # checks.severity.jump = "reject"    # reject | warn | info, per check name
+model.max_months = 120               # afterward model: month-end panel up to this maturity (24 .. 600 months;
+                                     # at most the longest quoted tenor)
+model.factors = 5                    # principal components in the term-premium model's state (1 .. 10)
 '''

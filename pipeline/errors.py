@@ -7,6 +7,8 @@ exit status for it: 2 for bad usage or a bad config, 1 for everything else.
     ├── ConfigError        a bad afterward.toml (key, value, convention)         exit 2
     ├── TenorError         a tenor label that cannot be read                     exit 2
     ├── UserError          a request that cannot be carried out (a missing file) exit 1
+    ├── ModelInputError    data or settings the term-structure model cannot use  exit 2
+    │                      (pipeline.term_structure.errors)
     └── StoreError         the store cannot be used as asked                     exit 1
         ├── StoreLocked    another process holds its write lock
         ├── StoreMissing   no store at the configured path

@@ -130,3 +130,28 @@ FROM audit_result;
 CREATE OR REPLACE VIEW term_premium AS
 SELECT curve, as_of, start_months, tenor_months, window_days, premium_bp, lower_bp, upper_bp
 FROM term_premium_result;
+
+-- one row per (curve, as_of, maturity_months): the month-end panel, continuous zero rates (decimal) at
+-- exact n/12-year times on the curve's day count; as_of is the last built day of the month
+CREATE OR REPLACE VIEW term_panel AS
+SELECT curve, as_of, maturity_months, zero_rate_cc
+FROM term_panel_point;
+
+-- one row per (curve, as_of, maturity_months, holding_months): log excess holding-period return,
+-- annualised (decimal), dated at the month end it is realised
+CREATE OR REPLACE VIEW excess_returns AS
+SELECT curve, as_of, maturity_months, holding_months, rx
+FROM excess_return_point;
+
+-- one row per (curve, test, maturity_months): campbell_shiller | fama_bliss | cochrane_piazzesi slope,
+-- its Newey-West standard error and t, R^2, observations, lags and the regressor's first and last month end
+CREATE OR REPLACE VIEW eh_regressions AS
+SELECT curve, test, maturity_months, coef, se, hac_t, r2, n, lags, first_as_of, last_as_of
+FROM eh_regression_result;
+
+-- one row per (curve, as_of, maturity_months, fit): the model yield, the risk-neutral yield and the term
+-- premium (model minus risk-neutral), continuous decimals a year; fit = realtime (the latest usable
+-- estimate made with month ends up to estimated_through only) or full (every month end)
+CREATE OR REPLACE VIEW model_term_premium AS
+SELECT curve, as_of, maturity_months, fit, model_yield, risk_neutral_yield, term_premium, estimated_through
+FROM model_term_premium_point;

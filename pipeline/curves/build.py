@@ -24,7 +24,7 @@ from pipeline.tenors import Tenor, parse_tenor
 if TYPE_CHECKING:  # the config imports the registered methods
     from pipeline.config import CurveConfig
 
-__all__ = ["BLOCKS", "build_curves", "curves_from_nodes", "node_zero_rates", "nss_curves"]
+__all__ = ["BLOCKS", "build_curves", "curves_from_nodes", "curves_from_stored", "node_zero_rates", "nss_curves"]
 
 MIN_QUOTES = 2
 QUOTE_KINDS = ("zero", "par", "discount", "simple")   # what a curve's numbers are (the config's ``quote``)
@@ -200,3 +200,47 @@ def curves_from_nodes(
     ok = np.ones(days.shape[0], dtype=bool)
     return CurveSet(days, method, ok, [None] * days.shape[0], [(np.arange(days.shape[0]), block)],
                     day_count=day_count)
+
+
+def curves_from_stored(
+    as_of: object, methods: Sequence[str], times: np.ndarray, zero_cc: np.ndarray,
+    nss_params: np.ndarray | None = None, day_count: str = "ACT/365F",
+) -> CurveSet:
+    """One :class:`CurveSet` again from what the build stored: each day's method, its node times
+    ``(D, n)`` (year fractions on ``day_count``, increasing along each row) and continuous zero rates
+    ``(D, n)`` at the quoted tenors, and for ``nss`` days their parameters ``(D, 6)``.
+
+    Days are grouped by method (one block per method, no loop over days). A node-based day is its
+    interpolation through the stored nodes, the same curve the build made when every quote was
+    there (the build's nodes are the quoted tenors; a day that lacked a quote was built without that
+    node, and its stored value there lies on its curve, so the rebuilt curve differs from the
+    original only between nodes, and not at all for ``linear_zero``). Days with non-finite nodes or
+    (``nss``) parameters are not ok.
+    """
+    days = as_days(as_of).reshape(-1)
+    meth = np.asarray(list(methods), dtype=object).reshape(-1)
+    t = np.asarray(times, dtype=float).reshape(days.shape[0], -1)
+    z = np.asarray(zero_cc, dtype=float).reshape(t.shape)
+    p = None if nss_params is None else np.asarray(nss_params, dtype=float).reshape(days.shape[0], 6)
+    ok = np.zeros(days.shape[0], dtype=bool)
+    blocks: list[tuple[np.ndarray, Block]] = []
+    for m in sorted(set(meth.tolist())):  # one block per stored method (one in practice)
+        rows = np.flatnonzero(meth == m)
+        if m == "nss":
+            good = p is not None
+            if good:
+                rows = rows[np.all(np.isfinite(p[rows]), axis=1)]
+            if good and rows.size:
+                blocks.append((rows, NSSBlock(p[rows])))
+                ok[rows] = True
+            continue
+        if m not in BLOCKS:
+            raise ValueError(f"unknown stored method {m!r}; allowed: {', '.join(METHOD_NAMES)}")
+        rows = rows[np.all(np.isfinite(t[rows]) & np.isfinite(z[rows]), axis=1)
+                    & np.all(np.diff(t[rows], axis=1) > 0.0, axis=1)]
+        if rows.size:
+            blocks.append((rows, BLOCKS[m](t[rows], z[rows])))
+            ok[rows] = True
+    reason = [None if g else "no usable stored nodes" for g in ok]
+    label = str(meth[0]) if len(set(meth.tolist())) == 1 else "mixed"
+    return CurveSet(days, label, ok, reason, blocks, params=p, day_count=day_count)

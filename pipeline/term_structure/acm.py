@@ -361,6 +361,7 @@ def model_term_premium(
     maturities: Sequence[int] | None = None,
     daily: bool = True,
     max_fit_rmse_bp: float = DEFAULT_MAX_FIT_RMSE_BP,
+    realtime: Sequence[ACMFit] | None = None,
 ) -> pd.DataFrame:
     """The ``model_term_premium`` view of one curve.
 
@@ -373,6 +374,8 @@ def model_term_premium(
     or model yields more than ``max_fit_rmse_bp`` off its own panel - is passed over, so such a
     day shows an older ``estimated_through``); days before the first usable fit have no row.
     ``daily=False`` gives month ends only. ``maturities``: months to keep (default ``1 .. N``).
+    ``realtime``: the fits :func:`realtime_fits` already made for this panel, factors and
+    ``min_months`` (a caller that also reports on them need not estimate twice).
     Raises :class:`ModelInputError` (one line) when the panel cannot support the model.
     """
     unknown = [f for f in fits if f not in FITS]
@@ -387,7 +390,8 @@ def model_term_premium(
     if "realtime" in fits:
         # a month end whose estimate has a problem (ACMFit.problem) is passed over: its days keep
         # the latest usable estimate, and estimated_through says which
-        rt = [f for f in realtime_fits(panel, factors, min_months) if f.problem(max_fit_rmse_bp) is None]
+        made = realtime_fits(panel, factors, min_months) if realtime is None else realtime
+        rt = [f for f in made if f.problem(max_fit_rmse_bp) is None]
         stamps = np.array([f.estimated_through for f in rt], dtype="datetime64[D]")
         which = np.searchsorted(stamps, days, side="right") - 1
         for i, fit in enumerate(rt):  # one block of days per month-end estimate

@@ -31,8 +31,8 @@ from pipeline.dates import BusinessCalendar, as_days
 from pipeline.tenors import Tenor, parse_tenor
 from pipeline.term_structure.errors import ModelInputError
 
-__all__ = ["DEFAULT_MAX_MONTHS", "TERM_PANEL_COLUMNS", "TermPanel", "longest_tenor_months", "term_panel",
-           "term_panel_from_yields"]
+__all__ = ["DEFAULT_MAX_MONTHS", "TERM_PANEL_COLUMNS", "TermPanel", "closed_month_ends", "longest_tenor_months",
+           "term_panel", "term_panel_from_yields"]
 
 DEFAULT_MAX_MONTHS = 120
 TERM_PANEL_COLUMNS = ("curve", "as_of", "maturity_months", "zero_rate_cc")
@@ -201,3 +201,11 @@ def term_panel(
     y = np.where(curves.ok[:, None], y, np.nan)
     return term_panel_from_yields(curves.as_of, y, curve, calendar=calendar,
                                   longest_tenor_months=int(longest_tenor_months))
+
+
+def closed_month_ends(days: object, calendar: BusinessCalendar | None = None) -> np.ndarray:
+    """The month ends a panel of built ``days`` would hold ``(M,)`` datetime64[D]: the last day of
+    each month, the last month only once closed (see the module notes). The same rule as
+    :func:`term_panel_from_yields`, on the days alone (what a job checks before recomputing)."""
+    d = np.unique(as_days(days).reshape(-1))
+    return term_panel_from_yields(d, np.empty((d.size, 0)), calendar=calendar).as_of
