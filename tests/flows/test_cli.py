@@ -222,10 +222,15 @@ def test_help_shows_what_a_user_types_not_python_types(tmp_path):
     assert "Usage: afterward load [OPTIONS] FILE..." in seen["load"]
     assert "Usage: afterward init [OPTIONS] [DIR]" in seen["init"]
     assert "Usage: afterward sql [OPTIONS] QUERY" in seen["sql"]
+    # a flag shows no value: "--full-sample-only" then straight to its help text
+    flag = next(x for x in seen["model"].splitlines() if "--full-sample-only" in x)
+    assert flag.split("--full-sample-only", 1)[1].split()[0] == "Only", flag
     for command, option, metavar in [("audit", "--from", "DATE"), ("audit", "--start", "TENOR"),
                                      ("audit", "--curve", "CURVE"), ("audit", "--format", "FORMAT"),
                                      ("sql", "--out", "FILE"), ("report", "--out", "DIR"), ("export", "--to", "DIR"),
                                      ("backfill", "--workers", "N"), ("status", "--config", "FILE"),
+                                     ("model", "--curve", "CURVE"), ("model", "--factors", "K"),
+                                     ("model", "--max-months", "N"), ("model", "--config", "FILE"),
                                      ("", "--config", "FILE")]:
         # the options panel's row: "│ [*] --from  DATE  First as-of date ..."
         line = next(x for x in seen[command].splitlines() if x.strip("│ *").startswith(f"{option} "))
