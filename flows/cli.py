@@ -569,12 +569,12 @@ def demo(directory: Annotated[Path, typer.Argument(metavar="DIR", help="Folder f
 # --- entry point ---------------------------------------------------------------------------------
 
 def _usage_errors() -> tuple[type[BaseException], type[BaseException]]:
-    """typer's own usage-error and abort classes (it carries its own copy of click)."""
+    """typer's own usage-error class (it carries its own copy of click) and its abort."""
     try:
-        from typer._click.exceptions import Abort, ClickException
+        from typer._click.exceptions import ClickException
     except ImportError:  # a typer that uses the click package
-        from click.exceptions import Abort, ClickException
-    return ClickException, Abort
+        from click.exceptions import ClickException
+    return ClickException, typer.Abort
 
 
 def main(argv: list[str] | None = None) -> int:
