@@ -35,11 +35,18 @@ from flows.chunks import (
     write_chunks,
 )
 from flows.dask_runner import dask_client, submit, task_runner_for
-from flows.tasks import check_quotes, read_audit_record, realize_forwards, refresh_audit, settle_build, store_audit
+from flows.tasks import (
+    check_quotes,
+    read_audit_record,
+    realize_forwards,
+    refresh_audit,
+    run_store,
+    settle_build,
+    store_audit,
+)
 from pipeline.audit.refresh import audit_record, join_audits, split_record
 from pipeline.config import load_config
 from warehouse import builds
-from warehouse.connect import writer
 from warehouse.loads import utc_now
 from warehouse.run_lock import run_lock
 
@@ -139,7 +146,7 @@ def backfill(config_path: str, first: str | None = None, last: str | None = None
         report("finish", len(finished), len(cfg.curves))
 
     # one job at a time per store, and one store for the run's many short steps
-    with run_lock(cfg.store_path, "backfill"), writer(cfg.store_path) as con:
+    with run_lock(cfg.store_path, "backfill"), run_store(cfg) as con:
         # the chunks compute while the checks run: a day the checks now hold back is dropped from
         # its chunk before it is stored, and a day they release is built by the build step after
         with stage("plan"):

@@ -86,10 +86,15 @@ def _console(stderr: bool = False):  # noqa: ANN202
     return Console(stderr=stderr, highlight=False, soft_wrap=True, width=width)
 
 
-def _config():  # noqa: ANN202
+def _config(curve: str | None = None):  # noqa: ANN202
+    """The config (``--config``, ``$AFTERWARD_CONFIG`` or ``./afterward.toml``); with ``curve``, checked
+    to name a configured curve."""
     from pipeline.config import find_config, load_config
 
-    return load_config(find_config(_state["config"]))  # type: ignore[arg-type]
+    cfg = load_config(find_config(_state["config"]))  # type: ignore[arg-type]
+    if curve is not None:
+        cfg.curve(curve)
+    return cfg
 
 
 def _set_config(value: str | None) -> str | None:
@@ -162,9 +167,7 @@ def load(
     """Load rate files, each in one transaction, and report what happened to every row."""
     from flows.load_step import load_files
 
-    cfg = _config()
-    if curve is not None:
-        cfg.curve(curve)
+    cfg = _config(curve)
     console = _console()
     outcomes = load_files(cfg, files, curve, reprocess=reprocess,
                           on_file=lambda o: console.print(describe_outcome(o), markup=False))
@@ -319,9 +322,7 @@ def check(
     from flows.check_step import accept_day, run_checks
     from flows.output import print_findings
 
-    cfg = _config()
-    if curve is not None:
-        cfg.curve(curve)
+    cfg = _config(curve)
     console = _console()
     if accept is None and reason is not None:
         raise _Exit("--reason goes with --accept CURVE DAY", 2)
@@ -360,9 +361,7 @@ def build(
         raise _Exit(f"--method {method!r} is not allowed; allowed: {', '.join(INTERPOLATIONS)}", 2)
     from flows.build_step import run_build
 
-    cfg = _config()
-    if curve is not None:
-        cfg.curve(curve)
+    cfg = _config(curve)
     console = _console()
     with _progress(console) as progress:
         tasks: dict[str, int] = {}
@@ -445,9 +444,7 @@ def audit(
     from flows.audit_step import run_audit
     from flows.output import print_audit
 
-    cfg = _config()
-    if curve is not None:
-        cfg.curve(curve)
+    cfg = _config(curve)
     names = [curve] if curve else list(cfg.curves)
     _in_grid(cfg, names, s_months, start, "--start", "starts", "forward_starts")
     _in_grid(cfg, names, t_months, tenor, "--tenor", "tenors", "forward_tenors")
@@ -504,9 +501,7 @@ def report(
 
     if out is not None and out.exists() and not out.is_dir():
         raise _Exit(f"--out {out} is a file; --out names the folder the report is written into", 2)
-    cfg = _config()
-    if curve is not None:
-        cfg.curve(curve)
+    cfg = _config(curve)
     path = write_report(cfg, out, curve, _day(first, "--from"), _day(last, "--to"))
     _console().print(str(path))
 
@@ -606,12 +601,12 @@ def demo(directory: Annotated[Path, typer.Argument(metavar="DIR", help="Folder f
 # --- entry point ---------------------------------------------------------------------------------
 
 def _usage_errors() -> tuple[type[BaseException], type[BaseException]]:
-    """typer's own usage-error and abort classes (it carries its own copy of click)."""
+    """typer's own usage-error class (it carries its own copy of click) and its abort."""
     try:
-        from typer._click.exceptions import Abort, ClickException
+        from typer._click.exceptions import ClickException
     except ImportError:  # a typer that uses the click package
-        from click.exceptions import Abort, ClickException
-    return ClickException, Abort
+        from click.exceptions import ClickException
+    return ClickException, typer.Abort
 
 
 def main(argv: list[str] | None = None) -> int:

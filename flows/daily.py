@@ -42,10 +42,10 @@ from flows.tasks import (
     realize_forwards,
     refresh_audit,
     refresh_model,
+    run_store,
     scan_inbox,
 )
 from pipeline.config import Config, load_config
-from warehouse.connect import writer
 from warehouse.findings import findings_since
 from warehouse.loads import utc_now
 from warehouse.run_lock import run_lock
@@ -98,7 +98,7 @@ def _daily(cfg: Config, settle_seconds: float, patience_seconds: float) -> Daily
     # the reading process is forked before the store is opened, so it never inherits the connection
     reader = reader_process() if len(taken) >= READ_AHEAD_MIN_FILES else None
     try:
-        with writer(cfg.store_path) as con:
+        with run_store(cfg) as con:
             outcomes = timed("load", load_new_files, cfg, taken, con, reader)
             moves = timed("file away", file_away_task, cfg, outcomes)
             summary.files = [file_record(o, m["moved_to"]) for o, m in zip(outcomes, moves, strict=True)]

@@ -9,6 +9,9 @@ step rolled back its transaction, so running it again is safe.
 
 from __future__ import annotations
 
+import contextlib
+import time
+from collections.abc import Iterator
 from pathlib import Path
 
 import duckdb
@@ -25,11 +28,12 @@ from flows.realize_step import RealizeSummary, run_realize
 from pipeline.audit.refresh import WholeAudit
 from pipeline.config import Config
 from pipeline.errors import StoreLocked
+from warehouse.connect import connect
 from warehouse.loads import LoadOutcome
 
-__all__ = ["RETRY", "build_days", "check_quotes", "file_away_task", "is_retryable", "load_new_files", "note_late",
-           "read_audit_record", "realize_forwards", "refresh_audit", "refresh_model", "scan_inbox", "settle_build",
-           "store_audit"]
+__all__ = ["RETRY", "RETRY_DELAYS", "build_days", "check_quotes", "file_away_task", "is_retryable", "load_new_files",
+           "note_late", "read_audit_record", "realize_forwards", "refresh_audit", "refresh_model", "run_store",
+           "scan_inbox", "settle_build", "store_audit"]
 
 # what a task retries on: a store locked by another process, or the disk / network
 RETRYABLE = (StoreLocked, OSError, duckdb.IOException)
@@ -48,8 +52,29 @@ def _retry_condition(task, task_run, state) -> bool:  # noqa: ANN001 - Prefect's
     return False
 
 
-RETRY = {"retries": 2, "retry_delay_seconds": [1, 4], "retry_condition_fn": _retry_condition}
+RETRY_DELAYS = [1, 4]
+RETRY = {"retries": len(RETRY_DELAYS), "retry_delay_seconds": RETRY_DELAYS, "retry_condition_fn": _retry_condition}
 Con = duckdb.DuckDBPyConnection
+
+
+@contextlib.contextmanager
+def run_store(cfg: Config) -> Iterator[Con]:
+    """The one store of a flow run, opened (writable) under the same retry policy as the steps: a store
+    another process holds is tried again after each of :data:`RETRY_DELAYS`, each try waiting up to
+    ``$AFTERWARD_LOCK_WAIT`` (:func:`warehouse.connect.connect`)."""
+    for delay in (*RETRY_DELAYS, None):
+        try:
+            con = connect(cfg.store_path, create=True)
+            break
+        except StoreLocked:
+            if delay is None:
+                raise
+            get_run_logger().warning("the store %s is locked; trying again in %s s", cfg.store_path, delay)
+            time.sleep(delay)
+    try:
+        yield con
+    finally:
+        con.close()
 
 
 @task(name="scan inbox", cache_policy=NO_CACHE)

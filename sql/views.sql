@@ -8,11 +8,16 @@
 
 -- a tenor label as months, for sorting by maturity: whole months for M and Y; nominal days / 30.4375 for
 -- ON (1), TN (2), SN (3), nD (n) and nW (7n)
--- one row per (curve, as_of, tenor, version): every quote version ever loaded; superseded_at NULL while current
-CREATE OR REPLACE VIEW quote_history AS
-SELECT curve, as_of, tenor, maturity_date, rate, recorded_at, source_file, superseded_at,
-       tenor_in_months(tenor) AS tenor_months
-FROM quote_version;
+CREATE OR REPLACE MACRO tenor_in_months(label) AS
+    CASE
+        WHEN label = 'ON' THEN CAST(1 AS DOUBLE) / 30.4375
+        WHEN label = 'TN' THEN CAST(2 AS DOUBLE) / 30.4375
+        WHEN label = 'SN' THEN CAST(3 AS DOUBLE) / 30.4375
+        WHEN right(label, 1) = 'D' THEN TRY_CAST(left(label, length(label) - 1) AS DOUBLE) / 30.4375
+        WHEN right(label, 1) = 'W' THEN 7 * TRY_CAST(left(label, length(label) - 1) AS DOUBLE) / 30.4375
+        WHEN right(label, 1) = 'M' THEN TRY_CAST(left(label, length(label) - 1) AS DOUBLE)
+        WHEN right(label, 1) = 'Y' THEN 12 * TRY_CAST(left(label, length(label) - 1) AS DOUBLE)
+    END;
 
 -- one row per (curve, as_of, tenor, version): every quote version ever loaded; superseded_at NULL while current
 CREATE OR REPLACE VIEW quote_history AS
