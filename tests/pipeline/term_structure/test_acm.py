@@ -1,6 +1,6 @@
 """The Adrian-Crump-Moench term premium: the reference implementation, invariants, a known economy.
 
-References: the PyPI package ``pyacm`` (2.x, ``NominalACM``; REFERENCES item 29, conventions in
+References: the PyPI package ``pyacm`` (2.x, ``NominalACM``; tests/REFERENCES.md #24, conventions in
 PITFALLS) given the same month-end panel as ``curve`` with ``curve_m=None`` (a monthly panel
 resamples to itself) and the same K; a Gaussian affine economy simulated here with known prices of
 risk (the pricing recursion of Adrian, Crump & Moench 2013, eq. for A_n, B_n); the invented demo

@@ -1,11 +1,11 @@
 """Expectations-hypothesis regressions against statsmodels, and on the 1946-1991 US history.
 
 References: statsmodels 0.15 ``OLS(...).fit(cov_type="HAC", cov_kwds={"maxlags": L})`` (Newey-West,
-Bartlett weights, the reference implementation; REFERENCES item 20) on regressions built here from
+Bartlett weights, the reference implementation; tests/REFERENCES.md #20) on regressions built here from
 the definitions with pandas on a calendar-month index: Campbell & Shiller (1991), Fama & Bliss
 (1987), Cochrane & Piazzesi (2005) with 18 Newey-West lags as in that paper. Campbell & Shiller
 (1991) report slope coefficients below 1, falling with maturity, on McCulloch's data, the source of
-``Ecdat/Irates`` (REFERENCES item 27): a qualitative check.
+``Ecdat/Irates`` (tests/REFERENCES.md #23): a qualitative check.
 """
 
 from __future__ import annotations
@@ -126,7 +126,7 @@ def test_frame_has_the_view_columns_and_tests(synthetic):
 def test_campbell_shiller_slopes_are_below_one_on_irates():
     # Qualitative: Campbell & Shiller (1991) find b_n below 1 and falling with maturity on
     # McCulloch's data. Measured here (12 lags): -2.38 (36m), -2.86 (60m), -4.45 (120m), which are
-    # also the figures REFERENCES item 27 records for this data and interpolation.
+    # also the figures tests/REFERENCES.md #23 records for this data and interpolation.
     out = eh_regressions(irates_panel())
     cs = out[out["test"] == "campbell_shiller"].set_index("maturity_months")
     for n in (36, 60, 120):
