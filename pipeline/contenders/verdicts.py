@@ -69,7 +69,7 @@ def cell_verdict(start_months: int, tenor_months: int, mcs: pd.DataFrame, n: int
                   for k, (c, p) in enumerate(zip(out["contender"], out["mcs_p_value"], strict=True))]
         if beaten:
             body += "; " + beaten[0] + "".join(f", and so is {b}" for b in beaten[1:])
-    tail = f"; n = {int(n):,}, about {n_effective:.0f} non-overlapping period{'s' if round(n_effective) != 1 else ''}"
+    tail = f"; n = {int(n):,}, about {n_effective:,.0f} non-overlapping period{'s' if round(n_effective) != 1 else ''}"
     if n_effective < INDICATIVE_BELOW:
         tail += f"; indicative only (fewer than {INDICATIVE_BELOW:.0f} non-overlapping periods)"
     return f"{what}: {body}{tail}"
