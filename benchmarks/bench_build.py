@@ -91,7 +91,7 @@ def write_files(root: Path, names, days: np.ndarray, zeros: np.ndarray) -> list[
 
 def loaded_store(root: Path, years: int, names=None):  # noqa: ANN001, ANN201
     """A store with the synthetic market loaded through the real load step; returns (cfg, days, cal, zeros)."""
-    from flows.steps import load_files
+    from flows.load_step import load_files
     from pipeline.config import load_config
 
     days, cal, zeros = synthetic_market(years)

@@ -5,7 +5,7 @@ with 1 and 2 workers.
 
 Daily part. For each history length a synthetic store is made from the invented demo market
 (``generate_market`` over the years up to 2025-12-31, clean monthly files, loaded with
-``flows.steps.load_files`` and carried through check, build, realize and audit without Prefect).
+``flows.load_step.load_files`` and carried through check, build, realize and audit without Prefect).
 Each repeat restores that store, drops the next business day's two files into the inbox and runs
 the ``daily`` flow. Prefect's start-up (its temporary server, once per process) is timed apart; the
 "work" column is the flow body's own wall time (scan, load, file away, check, build, realize,
@@ -86,10 +86,10 @@ def make_history(root: Path, years: int) -> tuple[Path, list[Path]]:
     from flows.audit_step import run_audit
     from flows.build_step import run_build
     from flows.check_step import run_checks
+    from flows.load_step import load_files
     from flows.realize_step import run_realize
-    from flows.steps import load_files
     from pipeline.config import load_config
-    from pipeline.demo_market import demo_config_toml, generate_market
+    from pipeline.demo import demo_config_toml, generate_market
     from warehouse.connect import writer
 
     root.mkdir(parents=True)
@@ -139,7 +139,7 @@ def run_daily_once(config_path: Path, day_files: list[Path]) -> tuple[float, flo
 
 
 def bench_daily(years_list: list[int], repeat: int, base: Path) -> None:
-    from flows.jobs import start_prefect
+    from flows.prefect_commands import start_prefect
 
     with start_prefect() as startup:
         print(f"{startup.describe()} (once for this process; excluded below)")
@@ -188,7 +188,7 @@ def parallel_probe() -> tuple[float, float]:
 
 def bench_backfill(repeat: int, base: Path) -> None:
     from flows.demo import make_demo_folder
-    from flows.steps import load_files
+    from flows.load_step import load_files
     from pipeline.config import load_config
     from warehouse.connect import writer
 
@@ -237,7 +237,7 @@ def main() -> None:
     parser.add_argument("--skip-backfill", action="store_true")
     parser.add_argument("--skip-daily", action="store_true")
     args = parser.parse_args()
-    from flows.jobs import prefect_environment
+    from flows.prefect_commands import prefect_environment
 
     prefect_environment()
     base = Path(tempfile.mkdtemp(prefix="afterward-bench-daily-"))

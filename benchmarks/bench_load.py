@@ -2,12 +2,12 @@
 
     .venv/bin/python benchmarks/bench_load.py [--repeat 3]
 
-Set-up (not timed): the demo inbox (``pipeline.demo_market.write_demo_inbox``: 360 monthly CSV files
+Set-up (not timed): the demo inbox (``pipeline.demo.write_demo_inbox``: 360 monthly CSV files
 of government par yields in percent, 360 monthly Parquet files of swap zero rates, one restatement
 file; about 15,500 curve-days and 190,000 quotes, with the demo's planted defects).
 
 Timed, median of ``--repeat`` runs, each in a fresh Python process on a fresh store, loading every
-file in name order through ``flows.steps.load_files`` (read, route, unit conversion, duplicate and
+file in name order through ``flows.load_step.load_files`` (read, route, unit conversion, duplicate and
 tenor checks, the Great Expectations row-level suite, one transaction per file):
 
 * ``process``: the whole process, interpreter start and imports included - what ``afterward load``
@@ -44,7 +44,7 @@ from pathlib import Path
 t0 = time.perf_counter()
 import great_expectations  # noqa: F401
 gx_import = time.perf_counter() - t0
-import flows.steps as steps
+import flows.load_step as steps
 import pipeline.expectations as expectations
 import warehouse.loads as loads
 from pipeline.config import load_config
@@ -79,7 +79,7 @@ print(json.dumps({"gx_import": gx_import, "load": load, "cpu": cpu, "phases": ph
 
 def make_inbox(root: Path) -> Path:
     from pipeline.config import load_config
-    from pipeline.demo_market import demo_config_toml, write_demo_inbox
+    from pipeline.demo import demo_config_toml, write_demo_inbox
 
     (root / "afterward.toml").write_text(demo_config_toml(), encoding="utf-8")
     cfg = load_config(root / "afterward.toml")

@@ -86,8 +86,8 @@ def new_day_file(root: Path, days: np.ndarray, cal, zeros: np.ndarray) -> tuple[
 
 def time_daily(root: Path, years: int, repeat: int) -> dict:
     from flows.build_step import run_build
+    from flows.load_step import load_files
     from flows.realize_step import run_realize
-    from flows.steps import load_files
 
     cfg, days, cal, zeros = built_store(root, years)
     run_realize(cfg, CURVE)  # the history is realised: the daily run only sees the new day

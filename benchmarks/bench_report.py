@@ -30,8 +30,8 @@ def make_demo(folder: Path) -> Path:
     from flows.build_step import run_build
     from flows.check_step import run_checks
     from flows.demo import make_demo_folder
+    from flows.load_step import load_files
     from flows.realize_step import run_realize
-    from flows.steps import load_files
 
     config = make_demo_folder(folder)
     cfg = load_config(config)

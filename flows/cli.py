@@ -15,8 +15,49 @@ from pathlib import Path
 from typing import Annotated
 
 import typer
+from typer.core import TyperArgument, TyperGroup
+
+from pipeline.errors import AfterwardError, ConfigError
+
+
+class _Argument(TyperArgument):
+    """An argument whose help shows only what a user types: its metavar (``FILE...``, ``[DIR]``), no
+    Python type column. A repeated argument's metavar carries its own ``...``."""
+
+    def display_type_rich(self, ctx):  # noqa: ANN001, ANN201
+        return None
+
+    def _usage_display_name(self) -> str:
+        return self.display_name_raw if self.required else f"[{self.display_name_raw}]"
+
+
+def _plain_help(command, ctx) -> None:  # noqa: ANN001
+    """Help without Python types: a flag (``--all``, ``--help``) shows no value, an argument only its
+    metavar. Options that take a value carry their own metavar (``DATE``, ``CURVE``, ...)."""
+    for param in command.params:
+        if isinstance(param, TyperArgument) and not isinstance(param, _Argument):
+            param.__class__ = _Argument
+        elif getattr(param, "is_flag", False) and param.metavar is None:
+            param.metavar = ""
+    help_option = command.get_help_option(ctx)
+    if help_option is not None:
+        help_option.metavar = ""
+
+
+class _Group(TyperGroup):
+    def get_command(self, ctx, cmd_name):  # noqa: ANN001, ANN201
+        command = super().get_command(ctx, cmd_name)
+        if command is not None:
+            _plain_help(command, ctx)
+        return command
+
+    def format_help(self, ctx, formatter) -> None:  # noqa: ANN001
+        _plain_help(self, ctx)
+        super().format_help(ctx, formatter)
+
 
 app = typer.Typer(
+    cls=_Group,
     add_completion=False,
     no_args_is_help=True,
     pretty_exceptions_enable=False,
@@ -26,10 +67,12 @@ app = typer.Typer(
 _state: dict[str, object] = {"config": None}
 
 
-class _Exit(Exception):
+class _Exit(AfterwardError):
+    """A usage or request error found by the command line itself, with its exit status."""
+
     def __init__(self, message: str, code: int) -> None:
         super().__init__(message)
-        self.code = code
+        self.exit_code = code
 
 
 def _console(stderr: bool = False):  # noqa: ANN202
@@ -43,24 +86,43 @@ def _console(stderr: bool = False):  # noqa: ANN202
     return Console(stderr=stderr, highlight=False, soft_wrap=True, width=width)
 
 
-def _config():  # noqa: ANN202
+def _config(curve: str | None = None):  # noqa: ANN202
+    """The config (``--config``, ``$AFTERWARD_CONFIG`` or ``./afterward.toml``); with ``curve``, checked
+    to name a configured curve."""
     from pipeline.config import find_config, load_config
 
-    return load_config(find_config(_state["config"]))  # type: ignore[arg-type]
+    cfg = load_config(find_config(_state["config"]))  # type: ignore[arg-type]
+    if curve is not None:
+        cfg.curve(curve)
+    return cfg
+
+
+def _set_config(value: str | None) -> str | None:
+    # before or after the command name: the one given last wins
+    if value is not None:
+        _state["config"] = value
+    return value
+
+
+# one option, accepted before the command (afterward --config F status) and after it (afterward status
+# --config F); every command that reads the config declares it
+ConfigOption = Annotated[str | None, typer.Option(
+    "--config", metavar="FILE", callback=_set_config, expose_value=True,
+    help="Path to afterward.toml (else $AFTERWARD_CONFIG, else ./afterward.toml).")]
+
+ForceOption = Annotated[bool, typer.Option("--force", help="Overwrite an existing --out file.")]
 
 
 @app.callback()
-def _main(
-    config: Annotated[str | None, typer.Option("--config", help="Path to afterward.toml.")] = None,
-) -> None:
-    _state["config"] = config
+def _main(config: ConfigOption = None) -> None:
+    pass  # --config is stored by its callback
 
 
 # --- init ----------------------------------------------------------------------------------------
 
 @app.command()
-def init(directory: Annotated[Path, typer.Argument(help="Folder for afterward.toml and the store.")] = Path(".")
-         ) -> None:
+def init(directory: Annotated[Path, typer.Argument(metavar="DIR", help="Folder for afterward.toml and the store.")
+                              ] = Path(".")) -> None:
     """Write a commented afterward.toml and an empty store."""
     from pipeline.config import load_config
     from pipeline.config_template import CONFIG_TEMPLATE
@@ -95,17 +157,17 @@ def describe_outcome(o) -> str:  # noqa: ANN001
 
 @app.command()
 def load(
-    files: Annotated[list[Path], typer.Argument(help="Rate files (CSV, Parquet, .xlsx).")],
-    curve: Annotated[str | None, typer.Option("--curve", help="Load every file into this curve.")] = None,
+    files: Annotated[list[Path], typer.Argument(metavar="FILE...", help="Rate files (CSV, Parquet, .xlsx).")],
+    curve: Annotated[str | None, typer.Option("--curve", metavar="CURVE", help="Load every file into this curve.")
+                     ] = None,
     reprocess: Annotated[bool, typer.Option(
         "--reprocess", help="Load files already loaded into the same curve again, as new loads that say so.")] = False,
+    config: ConfigOption = None,
 ) -> None:
     """Load rate files, each in one transaction, and report what happened to every row."""
-    from flows.steps import load_files
+    from flows.load_step import load_files
 
-    cfg = _config()
-    if curve is not None:
-        cfg.curve(curve)
+    cfg = _config(curve)
     console = _console()
     outcomes = load_files(cfg, files, curve, reprocess=reprocess,
                           on_file=lambda o: console.print(describe_outcome(o), markup=False))
@@ -147,24 +209,30 @@ def _guard_sql(query: str) -> None:
         raise _Exit(f"SQL error: {str(exc).splitlines()[0]}", 2) from None
     if not statements:
         raise _Exit("no SQL statement given", 2)
-    for st in statements:
+    for st in statements:  # a write anywhere in the text is named as such
         kind = kind_of(st)
         if kind not in _ALLOWED_STATEMENTS:
             raise _Exit(f"refused: {kind} statements are not allowed; 'afterward sql' is read-only "
                         "(queries only)", 2)
+    if len(statements) > 1:
+        # DuckDB's own splitter: a ';' inside a string literal or a comment does not count, a trailing one is fine
+        raise _Exit(f"one statement at a time: the query holds {len(statements)} statements", 2)
 
 
 @app.command()
 def sql(
-    query: Annotated[str, typer.Argument(help="A read-only SQL query over the views.")],
-    fmt: Annotated[str, typer.Option("--format", help="table | csv | json | parquet")] = "table",
-    out: Annotated[Path | None, typer.Option("--out", help="Write the result to this file.")] = None,
+    query: Annotated[str, typer.Argument(metavar="QUERY", help="A read-only SQL query over the views.")],
+    fmt: Annotated[str, typer.Option("--format", metavar="FORMAT", help="table | csv | json | parquet")] = "table",
+    out: Annotated[Path | None, typer.Option("--out", metavar="FILE", help="Write the result to this file.")] = None,
     allow_files: Annotated[bool, typer.Option("--allow-files", help="Let the query read files.")] = False,
+    force: ForceOption = False,
+    config: ConfigOption = None,
 ) -> None:
     """Run an ad-hoc query on a read-only connection.
 
-    Only queries run (SELECT and EXPLAIN of a SELECT). Without --allow-files a query reads files only
+    One query a run: SELECT, or EXPLAIN of a SELECT. Without --allow-files a query reads files only
     under the store's folder and the inbox folders; nothing can be installed, loaded or attached.
+    An existing --out file is kept (exit 1) unless --force.
     """
     from flows.output import write_result
 
@@ -172,6 +240,7 @@ def sql(
         raise _Exit(f"--format {fmt!r} is not allowed; allowed: table, csv, json, parquet", 2)
     if fmt == "parquet" and out is None:
         raise _Exit("--format parquet needs --out FILE", 2)
+    _check_out_file(out, force)
     _guard_sql(query)
     import duckdb
 
@@ -196,10 +265,22 @@ def sql(
     write_result(table, fmt, out, _console())
 
 
+def _check_out_file(out: Path | None, force: bool) -> None:
+    """Refuse, before any work, an --out that would overwrite a file (unless ``force``) or is a folder."""
+    if out is None:
+        return
+    if out.is_dir():
+        raise _Exit(f"--out {out} is a folder; give a file name", 2)
+    if out.exists() and not force:
+        raise _Exit(f"--out {out} already exists; not overwritten (add --force to replace it)", 1)
+    if not out.parent.is_dir():
+        raise _Exit(f"--out {out}: folder {out.parent} does not exist", 2)
+
+
 # --- status --------------------------------------------------------------------------------------
 
 @app.command()
-def status() -> None:
+def status(config: ConfigOption = None) -> None:
     """What is in the store: curves, date ranges, last load, open findings, pending forwards."""
     from flows.output import print_status
     from warehouse.connect import reader
@@ -226,25 +307,35 @@ def _day(value: str | None, option: str) -> str | None:
 
 @app.command()
 def check(
-    curve: Annotated[str | None, typer.Option("--curve", help="Only this curve.")] = None,
-    first: Annotated[str | None, typer.Option("--from", help="First as-of date (YYYY-MM-DD).")] = None,
-    last: Annotated[str | None, typer.Option("--to", help="Last as-of date (YYYY-MM-DD).")] = None,
+    curve: Annotated[str | None, typer.Option("--curve", metavar="CURVE", help="Only this curve.")] = None,
+    first: Annotated[str | None, typer.Option("--from", metavar="DATE", help="First as-of date (YYYY-MM-DD).")] = None,
+    last: Annotated[str | None, typer.Option("--to", metavar="DATE", help="Last as-of date (YYYY-MM-DD).")] = None,
     all_days: Annotated[bool, typer.Option("--all", help="Re-check every day, not only new ones.")] = False,
     accept: Annotated[tuple[str, str] | None, typer.Option("--accept", metavar="CURVE DAY",
                                                           help="Override a day's reject findings.")] = None,
+    reason: Annotated[str | None, typer.Option("--reason", metavar="TEXT",
+                                               help="Why the accepted day's quotes are right (needed with --accept).")
+                      ] = None,
+    config: ConfigOption = None,
 ) -> None:
     """Run the curve-level data checks and show the open findings; exit 1 if any reject is open."""
     from flows.check_step import accept_day, run_checks
     from flows.output import print_findings
 
-    cfg = _config()
-    if curve is not None:
-        cfg.curve(curve)
+    cfg = _config(curve)
     console = _console()
+    if accept is None and reason is not None:
+        raise _Exit("--reason goes with --accept CURVE DAY", 2)
     if accept is not None:
         a_curve, a_day = accept
-        n = accept_day(cfg, a_curve, _day(a_day, "--accept") or a_day)
-        console.print(f"accepted {a_curve} {a_day}: {n} reject finding(s) overridden; the day will be built")
+        if reason is None or not reason.strip():
+            raise _Exit("--accept needs --reason TEXT: why the day's quotes are right, kept with the acceptance", 2)
+        cfg.curve(a_curve)
+        n = accept_day(cfg, a_curve, _day(a_day, "--accept") or a_day, reason.strip())
+        if n == 0:
+            raise _Exit(f"{a_curve} {a_day} has no open reject finding; nothing accepted", 1)
+        console.print(f"accepted {a_curve} {a_day}: {n} reject finding(s) overridden until the day's quotes "
+                      "change; the day will be built")
         return
     summary = run_checks(cfg, curve, _day(first, "--from"), _day(last, "--to"), all_days)
     for name, info in summary.curves.items():
@@ -255,11 +346,13 @@ def check(
 
 @app.command()
 def build(
-    curve: Annotated[str | None, typer.Option("--curve", help="Only this curve.")] = None,
-    first: Annotated[str | None, typer.Option("--from", help="First as-of date (YYYY-MM-DD).")] = None,
-    last: Annotated[str | None, typer.Option("--to", help="Last as-of date (YYYY-MM-DD).")] = None,
+    curve: Annotated[str | None, typer.Option("--curve", metavar="CURVE", help="Only this curve.")] = None,
+    first: Annotated[str | None, typer.Option("--from", metavar="DATE", help="First as-of date (YYYY-MM-DD).")] = None,
+    last: Annotated[str | None, typer.Option("--to", metavar="DATE", help="Last as-of date (YYYY-MM-DD).")] = None,
     rebuild: Annotated[bool, typer.Option("--rebuild", help="Rebuild days already built.")] = False,
-    method: Annotated[str | None, typer.Option("--method", help="What-if interpolation method.")] = None,
+    method: Annotated[str | None, typer.Option("--method", metavar="METHOD", help="What-if interpolation method.")
+                      ] = None,
+    config: ConfigOption = None,
 ) -> None:
     """Build zero curves and forward surfaces for days not yet built."""
     from pipeline.config import INTERPOLATIONS
@@ -268,9 +361,7 @@ def build(
         raise _Exit(f"--method {method!r} is not allowed; allowed: {', '.join(INTERPOLATIONS)}", 2)
     from flows.build_step import run_build
 
-    cfg = _config()
-    if curve is not None:
-        cfg.curve(curve)
+    cfg = _config(curve)
     console = _console()
     with _progress(console) as progress:
         tasks: dict[str, int] = {}
@@ -289,7 +380,7 @@ def build(
 
 
 @app.command()
-def realize() -> None:
+def realize(config: ConfigOption = None) -> None:
     """Match forwards whose target date has been observed with the realised rate."""
     from flows.realize_step import run_realize
 
@@ -315,15 +406,36 @@ def _months_option(value: str | None, option: str) -> int | None:
     return t.months
 
 
+def _month_label(months: int) -> str:
+    return f"{months // 12}Y" if months and months % 12 == 0 else f"{months}M"
+
+
+def _in_grid(cfg, names: list[str], months: int | None, given: str | None, option: str, what: str,  # noqa: ANN001
+             attr: str) -> None:
+    """A --start / --tenor outside every chosen curve's forward grid would show an empty table: refuse it,
+    naming the grid's values (``forward.starts`` / ``forward.tenors`` of the config)."""
+    if months is None:
+        return
+    grids = {n: [t.months for t in getattr(cfg.curve(n), attr)] for n in names}
+    if any(months in g for g in grids.values()):
+        return
+    shown = {n: ", ".join(_month_label(m) for m in g) or "none" for n, g in grids.items()}
+    listed = (next(iter(shown.values())) if len(set(shown.values())) == 1
+              else "; ".join(f"{n}: {text}" for n, text in shown.items()))
+    raise _Exit(f"{option} {given} is not in the forward grid; the {what} are {listed}", 2)
+
+
 @app.command()
 def audit(
-    curve: Annotated[str | None, typer.Option("--curve", help="Only this curve.")] = None,
-    start: Annotated[str | None, typer.Option("--start", help="Only forwards starting this far ahead (e.g. 1Y).")
-                     ] = None,
-    tenor: Annotated[str | None, typer.Option("--tenor", help="Only forwards of this tenor (e.g. 3M).")] = None,
-    first: Annotated[str | None, typer.Option("--from", help="First as-of date (YYYY-MM-DD).")] = None,
-    last: Annotated[str | None, typer.Option("--to", help="Last as-of date (YYYY-MM-DD).")] = None,
-    fmt: Annotated[str, typer.Option("--format", help="table | csv | json")] = "table",
+    curve: Annotated[str | None, typer.Option("--curve", metavar="CURVE", help="Only this curve.")] = None,
+    start: Annotated[str | None, typer.Option("--start", metavar="TENOR",
+                                              help="Only forwards starting this far ahead (e.g. 1Y).")] = None,
+    tenor: Annotated[str | None, typer.Option("--tenor", metavar="TENOR",
+                                              help="Only forwards of this tenor (e.g. 3M).")] = None,
+    first: Annotated[str | None, typer.Option("--from", metavar="DATE", help="First as-of date (YYYY-MM-DD).")] = None,
+    last: Annotated[str | None, typer.Option("--to", metavar="DATE", help="Last as-of date (YYYY-MM-DD).")] = None,
+    fmt: Annotated[str, typer.Option("--format", metavar="FORMAT", help="table | csv | json")] = "table",
+    config: ConfigOption = None,
 ) -> None:
     """Forecast-error statistics by horizon, with a plain-language line for each."""
     if fmt not in ("table", "csv", "json"):
@@ -332,35 +444,72 @@ def audit(
     from flows.audit_step import run_audit
     from flows.output import print_audit
 
-    cfg = _config()
-    if curve is not None:
-        cfg.curve(curve)
+    cfg = _config(curve)
+    names = [curve] if curve else list(cfg.curves)
+    _in_grid(cfg, names, s_months, start, "--start", "starts", "forward_starts")
+    _in_grid(cfg, names, t_months, tenor, "--tenor", "tenors", "forward_tenors")
     results = run_audit(cfg, curve, _day(first, "--from"), _day(last, "--to"))
     print_audit(results, fmt, _console(), s_months, t_months)
 
 
 @app.command()
-def report(
-    out: Annotated[Path | None, typer.Option("--out", help="Folder for the report (default: reports/ beside "
-                                             "the config).")] = None,
-    curve: Annotated[str | None, typer.Option("--curve", help="Only this curve.")] = None,
-    first: Annotated[str | None, typer.Option("--from", help="First as-of date (YYYY-MM-DD).")] = None,
-    last: Annotated[str | None, typer.Option("--to", help="Last as-of date (YYYY-MM-DD).")] = None,
+def model(
+    curve: Annotated[str | None, typer.Option("--curve", metavar="CURVE", help="Only this curve.")] = None,
+    factors: Annotated[int | None, typer.Option("--factors", metavar="K",
+                                                help="Principal components in the model's state (default: "
+                                                     "model.factors, 5).")] = None,
+    max_months: Annotated[int | None, typer.Option("--max-months", metavar="N",
+                                                   help="Longest panel maturity in months (default: "
+                                                        "model.max_months, 120).")] = None,
+    full_sample_only: Annotated[bool, typer.Option("--full-sample-only",
+                                                   help="Only the full-sample fit; keep the real-time rows.")] = False,
+    config: ConfigOption = None,
 ) -> None:
-    """Write a self-contained HTML audit report and print its path."""
-    from flows.report_step import write_report
+    """The term-structure lens: month-end panel, excess returns, expectations-hypothesis tests, model term premium."""
+    from pipeline.config import MODEL_FACTORS, MODEL_MAX_MONTHS
+
+    for option, value, (lo, hi) in (("--factors", factors, MODEL_FACTORS), ("--max-months", max_months,
+                                                                           MODEL_MAX_MONTHS)):
+        if value is not None and not lo <= value <= hi:
+            raise _Exit(f"{option} {value} is not allowed; allowed: a whole number from {lo} to {hi}", 2)
+    from flows.model_step import run_model
+    from flows.output import print_model
 
     cfg = _config()
     if curve is not None:
         cfg.curve(curve)
+    summary = run_model(cfg, curve, factors, max_months, full_sample_only)
+    print_model(summary, _console())
+    if summary.refused:
+        raise typer.Exit(1)
+
+
+@app.command()
+def report(
+    out: Annotated[Path | None, typer.Option("--out", metavar="DIR", help="Folder for the report (default: reports/ "
+                                             "beside the config).")] = None,
+    curve: Annotated[str | None, typer.Option("--curve", metavar="CURVE", help="Only this curve.")] = None,
+    first: Annotated[str | None, typer.Option("--from", metavar="DATE", help="First as-of date (YYYY-MM-DD).")] = None,
+    last: Annotated[str | None, typer.Option("--to", metavar="DATE", help="Last as-of date (YYYY-MM-DD).")] = None,
+    config: ConfigOption = None,
+) -> None:
+    """Write a self-contained HTML audit report and print its path.
+
+    The report gets a new name in the folder (curve and UTC time, ``-2``... if taken): nothing is overwritten.
+    """
+    from flows.report_step import write_report
+
+    if out is not None and out.exists() and not out.is_dir():
+        raise _Exit(f"--out {out} is a file; --out names the folder the report is written into", 2)
+    cfg = _config(curve)
     path = write_report(cfg, out, curve, _day(first, "--from"), _day(last, "--to"))
     _console().print(str(path))
 
 
 @app.command()
-def run() -> None:
+def run(config: ConfigOption = None) -> None:
     """The daily job as one Prefect flow: load the inbox, check, build, realize, audit."""
-    from flows.jobs import cli_run
+    from flows.prefect_commands import cli_run
     from warehouse.run_lock import run_lock
 
     # taken before Prefect starts, so a second run stops at once rather than after the server's start-up
@@ -371,14 +520,16 @@ def run() -> None:
 
 @app.command()
 def backfill(
-    first: Annotated[str, typer.Option("--from", help="First as-of date (YYYY-MM-DD).")],
-    last: Annotated[str, typer.Option("--to", help="Last as-of date (YYYY-MM-DD).")],
-    workers: Annotated[int, typer.Option("--workers", help="Parallel workers (a local Dask cluster if > 1).")] = 1,
-    scheduler: Annotated[str | None, typer.Option("--scheduler", help="Address of an existing Dask scheduler.")
-                         ] = None,
+    first: Annotated[str, typer.Option("--from", metavar="DATE", help="First as-of date (YYYY-MM-DD).")],
+    last: Annotated[str, typer.Option("--to", metavar="DATE", help="Last as-of date (YYYY-MM-DD).")],
+    workers: Annotated[int, typer.Option("--workers", metavar="N",
+                                         help="Parallel workers (a local Dask cluster if > 1).")] = 1,
+    scheduler: Annotated[str | None, typer.Option("--scheduler", metavar="ADDRESS",
+                                                  help="Address of an existing Dask scheduler.")] = None,
+    config: ConfigOption = None,
 ) -> None:
     """Build and realise a range of dates in parallel chunks, with a progress bar."""
-    from flows.jobs import cli_backfill
+    from flows.prefect_commands import cli_backfill
     from warehouse.run_lock import run_lock
 
     if workers < 1:
@@ -390,25 +541,36 @@ def backfill(
 
 @app.command()
 def serve(
-    cron: Annotated[str | None, typer.Option("--cron", help="Cron expression (default from the config: weekdays "
-                                             "18:30).")] = None,
+    cron: Annotated[str | None, typer.Option("--cron", metavar="EXPR", help="Cron expression (default from the config: "
+                                             "weekdays 18:30).")] = None,
+    config: ConfigOption = None,
 ) -> None:
     """Serve the daily job on a schedule through Prefect."""
-    from flows.jobs import cli_serve
+    from flows.prefect_commands import cli_serve
 
     raise typer.Exit(cli_serve(_config_path(), cron, _console()))
 
 
 @app.command()
 def export(
-    to: Annotated[Path, typer.Option("--to", help="Folder for the Parquet files.")],
+    to: Annotated[Path, typer.Option("--to", metavar="DIR", help="Folder for the Parquet files.")],
+    config: ConfigOption = None,
 ) -> None:
-    """Write the views as Parquet, partitioned by curve and year."""
-    from flows.export_step import export_views
+    """Write every view as Parquet, by curve and year where it has both; replaces an earlier export.
+
+    A view with a curve and a date goes to DIR/VIEW/curve=C/year=Y/ (partition columns only in the paths), any
+    other view to DIR/VIEW/data.parquet.
+    """
+    from flows.export_step import EXPORT_VIEWS, export_views
 
     cfg = _config()
-    written = export_views(cfg, to)
-    _console().print(f"wrote {len(written)} view(s) under {to}")
+    summary = export_views(cfg, to)
+    console = _console()
+    for view, n in summary.rows.items():
+        layout = f"by curve and year of {EXPORT_VIEWS[view]}" if EXPORT_VIEWS[view] else "one file"
+        console.print(f"{view}: {n:,} row(s), {layout}", markup=False)
+    again = " (replacing the earlier export there)" if summary.replaced else ""
+    console.print(f"wrote {len(summary.rows)} view(s) under {summary.target}{again}", markup=False)
 
 
 def _config_path() -> Path:
@@ -428,7 +590,7 @@ def _progress(console):  # noqa: ANN001, ANN202
 # --- demo ----------------------------------------------------------------------------------------
 
 @app.command()
-def demo(directory: Annotated[Path, typer.Argument(help="Folder for the demo.")] = Path("afterward-demo")
+def demo(directory: Annotated[Path, typer.Argument(metavar="DIR", help="Folder for the demo.")] = Path("afterward-demo")
          ) -> None:
     """Make the invented demo market, run the whole job on it, and print where everything is."""
     from flows.demo import run_demo
@@ -438,36 +600,39 @@ def demo(directory: Annotated[Path, typer.Argument(help="Folder for the demo.")]
 
 # --- entry point ---------------------------------------------------------------------------------
 
+def _usage_errors() -> tuple[type[BaseException], type[BaseException]]:
+    """typer's own usage-error class (it carries its own copy of click) and its abort."""
+    try:
+        from typer._click.exceptions import ClickException
+    except ImportError:  # a typer that uses the click package
+        from click.exceptions import ClickException
+    return ClickException, typer.Abort
+
+
 def main(argv: list[str] | None = None) -> int:
     """Run the command line; map every user-facing error to a one-line message and an exit status."""
-    from pipeline.config import ConfigError
+    usage_error, abort = _usage_errors()
 
     def fail(message: str, code: int) -> int:
         print(f"afterward: {message}", file=sys.stderr)
         return code
 
+    _state["config"] = None
     try:
-        rc = app(args=argv, standalone_mode=False)
+        rc = app(args=argv, prog_name="afterward", standalone_mode=False)
     except typer.Exit as exc:
         return int(exc.exit_code or 0)
-    except _Exit as exc:
-        return fail(str(exc), exc.code)
     except ConfigError as exc:
-        return fail(f"config: {exc}", 2)
+        return fail(f"config: {exc}", exc.exit_code)
+    except AfterwardError as exc:  # everything a user can cause (pipeline.errors)
+        return fail(str(exc), exc.exit_code)
     except KeyboardInterrupt:
         return fail("interrupted", 130)
+    except abort:
+        return fail("aborted", 1)
+    except usage_error as exc:
+        return fail(exc.format_message(), 2)
     except Exception as exc:  # the last line of defence: one line, no traceback
-        name = type(exc).__name__
-        if name == "Abort":
-            return fail("aborted", 1)
-        if hasattr(exc, "format_message") and name.endswith(("Error", "Exception", "Parameter", "Option")):
-            # typer's own usage errors (it carries its own copy of click)
-            return fail(exc.format_message(), 2)
-        from flows.steps import UserError
-        from warehouse.connect import StoreError
-
-        if isinstance(exc, UserError | StoreError):
-            return fail(str(exc), 1)
         if os.environ.get("AFTERWARD_DEBUG"):
             raise
         first = str(exc).splitlines()[0] if str(exc) else ""

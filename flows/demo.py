@@ -15,7 +15,7 @@ __all__ = ["make_demo_folder", "run_demo"]
 
 def make_demo_folder(directory: Path) -> Path:
     """Write the demo's afterward.toml and inbox into ``directory``; returns the config path."""
-    from pipeline.demo_market import demo_config_toml, write_demo_inbox
+    from pipeline.demo import demo_config_toml, write_demo_inbox
 
     directory.mkdir(parents=True, exist_ok=True)
     config_path = directory / "afterward.toml"
@@ -26,14 +26,17 @@ def make_demo_folder(directory: Path) -> Path:
 
 
 def run_demo(directory: Path, console) -> None:  # noqa: ANN001
+    """Write the demo market into ``directory`` and carry it through the whole job on one store,
+    printing a line a step and where the config, store and report are."""
     from rich.progress import BarColumn, MofNCompleteColumn, Progress, TextColumn, TimeElapsedColumn
 
     from flows.audit_step import run_audit
     from flows.build_step import run_build
     from flows.check_step import run_checks
+    from flows.load_step import load_files, reader_process
     from flows.realize_step import run_realize
     from flows.report_step import write_report
-    from flows.steps import load_files
+    from warehouse.connect import writer
 
     console.print(f"writing the invented demo market (the Republic of Orvane, 30 years) into {directory} ...")
     config_path = make_demo_folder(directory)
@@ -51,33 +54,36 @@ def run_demo(directory: Path, console) -> None:  # noqa: ANN001
             totals["revised"] += o.rows_revised
             progress.advance(task)
 
-        load_files(cfg, files, on_file=on_file)
-
-        console.print(
-            f"load: {totals['loaded']} files ({totals['already loaded']} already loaded, {totals['refused']} "
-            f"refused): {totals['rows']:,} quotes accepted, {totals['revised']} revised, "
-            f"{totals['rejected']} rows rejected"
-        )
-        checked = run_checks(cfg)
-        counts = ", ".join(f"{n}: {c['findings']:,}" for n, c in checked.curves.items())
-        console.print(f"check: {checked.new_findings:,} findings ({counts}); "
-                      "see 'afterward check' or the findings view")
-        build_task = progress.add_task("building curves", total=None)
-
         def on_progress(name: str, done: int, total: int) -> None:
             progress.update(build_task, description=f"building {name}", completed=done, total=total)
 
-        built = run_build(cfg, on_progress=on_progress)
-        progress.update(build_task, visible=False)
-        held = sum(c["held"] for c in built.curves.values())
-        console.print(f"build: {built.days_built:,} curve-days, {built.forwards_built:,} forwards "
-                      f"({held} day(s) held back by reject findings)")
-        realized = run_realize(cfg)
-        pending = sum(c["pending"] for c in realized.curves.values())
-        console.print(f"realize: {realized.realized:,} outcomes; {pending:,} forwards still pending")
-        audited = run_audit(cfg)
-        rows = sum(len(f) for f in audited.values())
-        console.print(f"audit: {rows} horizon x regime rows in audit_summary; see 'afterward audit'")
+        # one store for the job's steps; the reading process is forked before it is opened
+        reader = reader_process()
+        try:
+            with writer(cfg.store_path) as con:
+                load_files(cfg, files, on_file=on_file, con=con, reader=reader)
+                console.print(
+                    f"load: {totals['loaded']} files ({totals['already loaded']} already loaded, "
+                    f"{totals['refused']} refused): {totals['rows']:,} quotes accepted, {totals['revised']} revised, "
+                    f"{totals['rejected']} rows rejected")
+                checked = run_checks(cfg, con=con)
+                counts = ", ".join(f"{n}: {c['findings']:,}" for n, c in checked.curves.items())
+                console.print(f"check: {checked.new_findings:,} findings ({counts}); "
+                              "see 'afterward check' or the findings view")
+                build_task = progress.add_task("building curves", total=None)
+                built = run_build(cfg, on_progress=on_progress, con=con)
+                progress.update(build_task, visible=False)
+                held = sum(c["held"] for c in built.curves.values())
+                console.print(f"build: {built.days_built:,} curve-days, {built.forwards_built:,} forwards "
+                              f"({held} day(s) held back by reject findings)")
+                realized = run_realize(cfg, con=con)
+                pending = sum(c["pending"] for c in realized.curves.values())
+                console.print(f"realize: {realized.realized:,} outcomes; {pending:,} forwards still pending")
+                rows = sum(len(f) for f in run_audit(cfg, con=con).values())
+                console.print(f"audit: {rows} horizon x regime rows in audit_summary; see 'afterward audit'")
+        finally:
+            if reader is not None:
+                reader.shutdown(wait=True)
         report = write_report(cfg, None, None, None, None)
     console.print(f"config: {config_path}")
     console.print(f"store:  {cfg.store_path}")

@@ -1,16 +1,17 @@
-"""``afterward export``: the views as Parquet for larger engines, hive-partitioned by curve and year.
+"""``afterward export``: every stable view as Parquet, in the layout that common readers open.
 
 Layout under the target folder ``DIR``::
 
-    DIR/forwards/curve=govt/year=2024/data_0.parquet
-    DIR/audit_summary/curve=govt/data_0.parquet      (no date grain: by curve only)
-    DIR/loads/data.parquet                           (no curve: one file)
-    DIR/findings/empty.parquet                       (a view with no rows: its schema, no rows)
-    DIR/_afterward_export.json                       (what was written, row counts, when)
+    DIR/forwards/curve=govt/year=2024/data_0.parquet   (a view with a curve and a date)
+    DIR/findings/empty.parquet                          (such a view with no rows: its schema, no rows)
+    DIR/audit_summary/data.parquet                      (a view without an as-of date: one file)
+    DIR/_afterward_export.json                          (what was written, row counts, when)
 
-``year`` is the calendar year of each view's date column (``as_of``; ``first_day`` for
-``inversion_episodes``). The partition columns are also written inside the files
-(``WRITE_PARTITION_COLUMNS``), so engines that ignore the folder names still see them.
+``year`` is the calendar year of the view's date column named in :data:`EXPORT_VIEWS`. The
+partition columns ``curve`` and ``year`` live only in the folder names, never inside the files
+(the hive convention): pyarrow's datasets, and so ``pandas.read_parquet(DIR/view)``, infer them
+from the paths and refuse a file that holds them again with other types. Read back with hive
+partitioning on, a partitioned view has its own columns plus ``year``.
 
 A re-export replaces the whole previous export at once: DuckDB's ``COPY ... PARTITION_BY`` either
 refuses a non-empty folder or, with its overwrite options, wipes or duplicates partitions. So the
@@ -24,39 +25,47 @@ from __future__ import annotations
 import json
 import shutil
 import tempfile
+from dataclasses import dataclass, field
 from pathlib import Path
 
 from pipeline.config import Config
+from pipeline.errors import UserError
+from warehouse import export as files
 from warehouse.connect import reader
 from warehouse.loads import utc_now
 
-__all__ = ["EXPORT_VIEWS", "MARKER", "export_views"]
+__all__ = ["EXPORT_VIEWS", "MARKER", "ExportSummary", "export_views"]
 
 MARKER = "_afterward_export.json"
 
-# view -> (partition columns, the date column whose year is the ``year`` partition)
-EXPORT_VIEWS: dict[str, tuple[tuple[str, ...], str | None]] = {
-    "quotes": (("curve", "year"), "as_of"),
-    "quote_history": (("curve", "year"), "as_of"),
-    "findings": (("curve", "year"), "as_of"),
-    "inversion_episodes": (("curve", "year"), "first_day"),
-    "zero_rates": (("curve", "year"), "as_of"),
-    "forwards": (("curve", "year"), "as_of"),
-    "outcomes": (("curve", "year"), "as_of"),
-    "term_premium": (("curve", "year"), "as_of"),
-    "audit_summary": (("curve",), None),
-    "loads": ((), None),
-    "rejected_rows": ((), None),
+# view -> the date column whose calendar year is the ``year`` partition (None: one file, no partitions)
+EXPORT_VIEWS: dict[str, str | None] = {
+    "quotes": "as_of",
+    "quote_history": "as_of",
+    "loads": None,
+    "rejected_rows": None,
+    "findings": "as_of",
+    "inversion_episodes": "first_day",
+    "zero_rates": "as_of",
+    "forwards": "as_of",
+    "outcomes": "as_of",
+    "audit_summary": None,
+    "term_premium": "as_of",
 }
 
 
-def _sql_string(path: Path) -> str:
-    return "'" + str(path).replace("'", "''") + "'"
+@dataclass
+class ExportSummary:
+    """What one export wrote: ``rows`` per view, each view's folder or file, and whether it replaced an
+    earlier export in the same folder."""
+
+    target: Path
+    rows: dict[str, int] = field(default_factory=dict)
+    paths: dict[str, Path] = field(default_factory=dict)
+    replaced: bool = False
 
 
 def _check_target(target: Path) -> None:
-    from flows.steps import UserError
-
     if target.exists() and not target.is_dir():
         raise UserError(f"export target {target} is a file, not a folder")
     if target.is_dir() and any(target.iterdir()) and not (target / MARKER).is_file():
@@ -64,39 +73,32 @@ def _check_target(target: Path) -> None:
                         "choose an empty or new folder")
 
 
-def export_views(cfg: Config, to_dir: Path) -> list[Path]:
-    """Write every view under ``to_dir`` (see the module docstring); returns each view's folder or file.
+def export_views(cfg: Config, to_dir: Path) -> ExportSummary:
+    """Write every view of :data:`EXPORT_VIEWS` under ``to_dir`` (see the module docstring).
 
-    Reads through a read-only connection. Rates are decimals, errors in bp, as in the views.
+    Reads through a read-only connection. Values are as in the views: rates decimals, errors in bp,
+    dates as Parquet DATE, timestamps (``recorded_at``, ``started_at``, ...) naive UTC.
     """
     target = Path(to_dir).resolve()
     _check_target(target)
     target.parent.mkdir(parents=True, exist_ok=True)
+    summary = ExportSummary(target, replaced=(target / MARKER).is_file())
     staging = Path(tempfile.mkdtemp(prefix=f".{target.name}.export-", dir=target.parent))
-    written: list[Path] = []
-    counts: dict[str, int] = {}
     try:
         with reader(cfg.store_path) as con:
-            for view, (parts, date_col) in EXPORT_VIEWS.items():
-                select = f"SELECT *, year({date_col}) AS year FROM {view}" if date_col else f"SELECT * FROM {view}"
-                counts[view] = int(con.execute(f"SELECT count(*) FROM {view}").fetchone()[0])
-                if parts:
-                    out = staging / view
-                    out.mkdir()
-                    if counts[view]:
-                        con.execute(f"COPY ({select} ORDER BY ALL) TO {_sql_string(out)} (FORMAT parquet, "
-                                    f"PARTITION_BY ({', '.join(parts)}), WRITE_PARTITION_COLUMNS true)")
-                    else:  # no partition to write: one empty file keeps the schema readable
-                        con.execute(f"COPY ({select} LIMIT 0) TO {_sql_string(out / 'empty.parquet')} "
-                                    "(FORMAT parquet)")
-                    written.append(target / view)
+            for view, date_col in EXPORT_VIEWS.items():
+                summary.rows[view] = n = files.count_rows(con, view)
+                out = staging / view
+                out.mkdir()
+                if date_col is None:
+                    files.copy_whole(con, view, out / "data.parquet")
+                    summary.paths[view] = target / view / "data.parquet"
                 else:
-                    (staging / view).mkdir()
-                    out = staging / view / "data.parquet"
-                    con.execute(f"COPY ({select} ORDER BY ALL) TO {_sql_string(out)} (FORMAT parquet)")
-                    written.append(target / view / "data.parquet")
+                    files.copy_partitioned(con, view, date_col, out, n)
+                    summary.paths[view] = target / view
         manifest = {"exported_at": utc_now().isoformat(timespec="seconds") + "Z", "store": str(cfg.store_path),
-                    "views": {v: {"rows": counts[v], "partition_by": list(EXPORT_VIEWS[v][0])} for v in EXPORT_VIEWS}}
+                    "views": {v: {"rows": summary.rows[v], "partition_by": ["curve", "year"] if d else [],
+                                  "year_of": d} for v, d in EXPORT_VIEWS.items()}}
         (staging / MARKER).write_text(json.dumps(manifest, indent=2) + "\n", encoding="utf-8")
         # swap: the old export moves aside, the new one takes its name, then the old one goes
         old = None
@@ -110,4 +112,4 @@ def export_views(cfg: Config, to_dir: Path) -> list[Path]:
     except BaseException:
         shutil.rmtree(staging, ignore_errors=True)
         raise
-    return written
+    return summary

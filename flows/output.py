@@ -6,13 +6,14 @@ import csv
 import io
 import json
 import math
+import os
 from datetime import date, datetime
 from pathlib import Path
 from typing import Any
 
 import pyarrow as pa
 
-__all__ = ["neutralise_cell", "print_status", "write_result"]
+__all__ = ["neutralise_cell", "print_model", "print_status", "write_result"]
 
 _FORMULA_START = ("=", "+", "-", "@", "\t", "\r")
 
@@ -34,14 +35,23 @@ def _plain(value: Any) -> Any:
     return value
 
 
+def _part(out: Path) -> Path:
+    return out.with_name(out.name + ".part")
+
+
 def write_result(table: pa.Table, fmt: str, out: Path | None, console) -> None:  # noqa: ANN001
-    """Write an Arrow table as ``table`` (rich), ``csv``, ``json`` (records) or ``parquet``."""
+    """Write an Arrow table as ``table`` (rich), ``csv``, ``json`` (records) or ``parquet``.
+
+    ``out`` is written beside itself and renamed into place, so a failed write leaves any earlier file as it
+    was (whether it may be replaced is the caller's decision).
+    """
     if fmt == "parquet":
         import pyarrow.parquet as pq
 
         assert out is not None
-        pq.write_table(table, out)
-        console.print(f"wrote {table.num_rows} rows to {out}")
+        pq.write_table(table, _part(out))
+        os.replace(_part(out), out)
+        console.print(f"wrote {table.num_rows} rows to {out}", markup=False)
         return
     rows = table.to_pylist()
     if fmt == "json":
@@ -74,8 +84,9 @@ def write_result(table: pa.Table, fmt: str, out: Path | None, console) -> None: 
         Console(file=buf, width=200).print(t)
         text = buf.getvalue()
     if out is not None:
-        out.write_text(text, encoding="utf-8")
-        console.print(f"wrote {table.num_rows} rows to {out}")
+        _part(out).write_text(text, encoding="utf-8")
+        os.replace(_part(out), out)
+        console.print(f"wrote {table.num_rows} rows to {out}", markup=False)
     else:
         print(text, end="" if text.endswith("\n") else "\n")
 
@@ -109,25 +120,10 @@ def print_findings(cfg, console, curve: str | None = None, first: str | None = N
     from rich.table import Table
 
     from warehouse.connect import reader
+    from warehouse.findings import open_finding_groups
 
-    where, params = ["TRUE"], []
-    if curve:
-        where.append("curve = ?")
-        params.append(curve)
-    if first:
-        where.append("as_of >= CAST(? AS DATE)")
-        params.append(first)
-    if last:
-        where.append("as_of <= CAST(? AS DATE)")
-        params.append(last)
     with reader(cfg.store_path) as con:
-        groups = con.execute(
-            f"""SELECT check_name, curve, severity, count(*), min(as_of), max(as_of),
-                       arg_min(coalesce(tenor || ': ', '') || detail, as_of)
-                FROM open_findings WHERE {' AND '.join(where)}
-                GROUP BY ALL ORDER BY check_name, curve, severity""", params).fetchall()
-        rejects = con.execute(f"SELECT count(*) FROM open_findings WHERE severity = 'reject' AND "
-                              f"{' AND '.join(where)}", params).fetchall()[0][0]
+        groups, rejects = open_finding_groups(con, curve, first, last)
     if not groups:
         console.print("no open findings")
         return 0
@@ -139,7 +135,7 @@ def print_findings(cfg, console, curve: str | None = None, first: str | None = N
     console.print(t)
     if rejects:
         console.print(f"{rejects} reject finding(s) open: those days are kept out of build until restated "
-                      "or accepted (afterward check --accept CURVE DAY)")
+                      "or accepted (afterward check --accept CURVE DAY --reason TEXT)")
     return int(rejects)
 
 
@@ -186,3 +182,41 @@ def print_audit(results: dict, fmt: str, console, start: int | None = None, teno
                       f"{r['verdict']}")
     console.print("Statistical findings for model validation, not investment advice; overlapping forecasts are "
                   "accounted for with Newey-West standard errors.")
+
+
+def print_model(summary, console) -> None:  # noqa: ANN001
+    """Per curve: the panel (month ends, skipped months), the fits, the latest real-time 2/5/10-year
+    term premium in bp, and the regressions' verdict lines."""
+    import numpy as np
+    from rich.table import Table
+
+    for name, reason in summary.refused.items():
+        console.print(f"{name}: not modelled: {reason}", markup=False)
+    for name, info in summary.curves.items():
+        t = Table(title=f"{name}: term-structure lens (N = {info['max_months']} months, K = {info['factors']})")
+        t.add_column("item")
+        t.add_column("value")
+        t.add_row("month ends in the panel", f"{info['months']:,}")
+        skipped = info["skipped"]
+        t.add_row("skipped months (no built day)",
+                  f"{len(skipped)}: {', '.join(skipped)}" if skipped else "none")
+        if info["open_month"]:
+            t.add_row("left out (not yet closed)", info["open_month"])
+        if info["full_sample_only"]:
+            t.add_row("real-time fits", "not re-estimated (--full-sample-only)")
+        elif info["realtime_skipped"]:
+            t.add_row("real-time fits", info["realtime_skipped"])
+        else:
+            t.add_row("real-time fits", f"{info['realtime_fits']} month-end estimates, {len(info['passed'])} passed "
+                                        f"over as unusable; {info['realtime_used']} in use")
+        t.add_row("full-sample fit", info["full_problem"] or "usable")
+        if info["latest_bp"]:
+            through = np.datetime64(info["latest_through"], "D")
+            head = ", ".join(f"{_label(m)} {bp:.1f}" for m, bp in info["latest_bp"].items())
+            t.add_row(f"real-time term premium on {np.datetime64(info['latest_as_of'], 'D')} (bp)",
+                      f"{head} (estimated through {through})")
+        console.print(t)
+        for line in info["passed"][-3:]:
+            console.print(f"{name}: passed over {line}", markup=False)
+        for line in info["verdicts"]:
+            console.print(f"{name}: {line}", markup=False)

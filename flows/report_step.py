@@ -18,9 +18,8 @@ import pandas as pd
 
 from pipeline.config import Config, CurveConfig
 from pipeline.report import CurveReport, ReportData, choose_pairs, render_report
+from warehouse import report as store
 from warehouse.connect import reader
-from warehouse.frames import read_frame
-from warehouse.query import fetch_one
 from warehouse.schema import schema_version
 
 __all__ = ["gather_report", "program_version", "report_path", "write_report"]
@@ -31,17 +30,6 @@ def program_version() -> str:
         return version("afterward")
     except PackageNotFoundError:  # a source tree that is not installed
         return "(source)"
-
-
-def _window_sql(column: str, first: str | None, last: str | None) -> tuple[str, list]:
-    where, params = [], []
-    if first:
-        where.append(f"{column} >= CAST(? AS DATE)")
-        params.append(str(first))
-    if last:
-        where.append(f"{column} <= CAST(? AS DATE)")
-        params.append(str(last))
-    return (" AND " + " AND ".join(where)) if where else "", params
 
 
 def _conventions(c: CurveConfig) -> tuple[tuple[str, str], ...]:
@@ -72,53 +60,25 @@ def _conventions(c: CurveConfig) -> tuple[tuple[str, str], ...]:
 
 def _curve_report(con, cfg: Config, name: str, first: str | None, last: str | None) -> CurveReport:  # noqa: ANN001
     c = cfg.curve(name)
-    w, wp = _window_sql("as_of", first, last)
-    span = fetch_one(con, f"SELECT min(as_of), max(as_of), count(DISTINCT as_of) FROM quotes WHERE curve = ?{w}",
-                     [name, *wp])
-    history = read_frame(con, f"SELECT as_of, tenor, zero_rate AS rate FROM zero_rates WHERE curve = ?{w} "
-                              "ORDER BY as_of", [name, *wp])
+    span = store.curve_span(con, name, first, last)
     freq = {None: "continuous", 0: "simple"}.get(c.frequency_per_year, c.compounding)
-    history_label = f"zero rate ({freq}, {c.day_count})"
-    ew, ewp = "", []
-    if first:
-        ew += " AND last_day >= CAST(? AS DATE)"
-        ewp.append(first)
-    if last:
-        ew += " AND first_day <= CAST(? AS DATE)"
-        ewp.append(last)
-    episodes = read_frame(con, f"SELECT short_tenor, long_tenor, first_day, last_day, days, deepest_bp "
-                               f"FROM inversion_episodes WHERE curve = ?{ew} ORDER BY first_day", [name, *ewp])
     starts = [t.months for t in c.forward_starts if t.months is not None]
     tenors = [t.months for t in c.forward_tenors if t.months is not None]
     pairs = choose_pairs(starts, tenors)
-    outcomes = pd.DataFrame()
-    if pairs:
-        values = ", ".join(f"({int(s)}, {int(t)})" for s, t in pairs)
-        outcomes = read_frame(
-            con,
-            "SELECT start_months, tenor_months, as_of, target_date, observed_on, forward_rate, realized_rate, "
-            f"spot_rate, error_bp, rw_error_bp FROM outcomes WHERE curve = ?{w} "
-            f"AND (start_months, tenor_months) IN ({values}) ORDER BY start_months, tenor_months, as_of",
-            [name, *wp])
     summary, notes = _summary(con, cfg, name, first, last)
     premium_tenor = pairs[0][1] if pairs else None
-    premium = pd.DataFrame()
-    if premium_tenor is not None:
-        premium = read_frame(con, "SELECT start_months, tenor_months, as_of, window_days, premium_bp, lower_bp, "
-                                  f"upper_bp FROM term_premium WHERE curve = ? AND tenor_months = ?{w} "
-                                  "AND start_months > 0 ORDER BY start_months, as_of",
-                             [name, premium_tenor, *wp])
+    premium = store.premium(con, name, premium_tenor, first, last)
     window_days = int(premium["window_days"].iloc[0]) if len(premium) else c.premium_window_days
-    pending = fetch_one(con, f"SELECT count(*) FROM pending_forwards WHERE curve = ?{w}", [name, *wp])
     return CurveReport(
-        name=name, conventions=_conventions(c), tenors=c.tenor_labels, history=history,
-        history_label=history_label,
+        name=name, conventions=_conventions(c), tenors=c.tenor_labels, history=store.history(con, name, first, last),
+        history_label=f"zero rate ({freq}, {c.day_count})",
         inversion_pair=(c.inversion_pairs[0][0].label, c.inversion_pairs[0][1].label) if c.inversion_pairs else None,
-        episodes=episodes, pairs=pairs, outcomes=outcomes, summary=summary, premium=premium,
+        episodes=store.episodes(con, name, first, last), pairs=pairs,
+        outcomes=store.outcome_pairs(con, name, pairs, first, last), summary=summary, premium=premium,
         premium_tenor=premium_tenor, premium_window_days=window_days,
         first_day=span[0] if span else None, last_day=span[1] if span else None,
         days_observed=int(span[2]) if span and span[2] is not None else 0,
-        pending=int(pending[0]) if pending else 0, notes=tuple(notes),
+        pending=store.pending(con, name, first, last), notes=tuple(notes),
     )
 
 
@@ -132,11 +92,8 @@ def _summary(con, cfg: Config, name: str, first: str | None, last: str | None  #
              ) -> tuple[pd.DataFrame, list[str]]:
     """The audit figures for the report's window: stored ones when they cover it, else recomputed."""
     notes: list[str] = []
-    stored = read_frame(con, "SELECT * FROM audit_result WHERE curve = ? ORDER BY start_months, tenor_months, regime",
-                        [name])
-    latest = fetch_one(con, "SELECT max(realized_at), count(*) FROM outcome WHERE curve = ? AND superseded_at IS NULL",
-                       [name])
-    n_outcomes = int(latest[1]) if latest else 0
+    stored = store.stored_summary(con, name)
+    latest, n_outcomes = store.outcome_version(con, name)
     if n_outcomes == 0:
         return stored.iloc[0:0] if len(stored) else stored, notes
     covers = (len(stored) and _same_day(stored["window_from"].iloc[0], first)
@@ -160,7 +117,7 @@ def _summary(con, cfg: Config, name: str, first: str | None, last: str | None  #
         notes.append("Outcomes exist but no audit has been run yet: run 'afterward audit' to add the "
                      "statistics.")
         return stored, notes
-    if latest[0] is not None and pd.Timestamp(stored["data_version"].max()) < pd.Timestamp(latest[0]):
+    if latest is not None and pd.Timestamp(stored["data_version"].max()) < pd.Timestamp(latest):
         notes.append(f"The audit figures date from {pd.Timestamp(stored['computed_at'].max()):%Y-%m-%d %H:%M} and do "
                      "not include outcomes realised since; run 'afterward audit' to bring them up to date.")
     return stored, notes
@@ -174,37 +131,11 @@ def gather_report(cfg: Config, curve: str | None = None, first: str | None = Non
     with reader(cfg.store_path) as con:
         schema = schema_version(con)
         curves = tuple(_curve_report(con, cfg, n, first, last) for n in names)
-        placeholders = ", ".join("?" for _ in names)
-        w, wp = _window_sql("as_of", first, last)
-        # the files the figures rest on (holding current quotes in scope), the files whose rows in scope were
-        # all restated or rejected (any version in scope), and the refused files (they carry no dates)
-        loads = read_frame(
-            con,
-            "SELECT load_id, file_name, source_file, sha256, size_bytes, curve, started_at, finished_at, rows_read, "
-            "rows_accepted, rows_revised, rows_rejected, status, detail, "
-            "load_id IN (SELECT DISTINCT load_id FROM quote_version WHERE superseded_at IS NULL "
-            f"AND curve IN ({placeholders}){w}) AS current FROM load_log l "
-            "WHERE l.load_id IN (SELECT DISTINCT load_id FROM quote_version "
-            f"WHERE curve IN ({placeholders}){w}) "
-            f"OR (l.status <> 'loaded' AND (l.curve IS NULL OR l.curve IN ({placeholders}))) "
-            + ("" if first or last else f"OR (l.rows_rejected > 0 AND l.curve IN ({placeholders})) ")
-            + "ORDER BY load_id",
-            [*names, *wp, *names, *wp, *names, *([] if first or last else names)])
-        builds = read_frame(
-            con,
-            "SELECT curve, method, code_version, count(*) AS days, min(as_of) AS first_day, max(as_of) AS last_day "
-            f"FROM built_day WHERE scenario = 'official' AND curve IN ({placeholders}){w} "
-            "GROUP BY curve, method, code_version ORDER BY curve, first_day", [*names, *wp])
-        findings = read_frame(
-            con, f"SELECT curve, as_of, check_name, severity, tenor, detail FROM findings WHERE curve IN "
-                 f"({placeholders}){w} ORDER BY curve, as_of", [*names, *wp])
-        held = read_frame(
-            con, f"SELECT curve, as_of, check_name, severity, tenor, detail FROM open_findings WHERE severity = "
-                 f"'reject' AND curve IN ({placeholders}){w} ORDER BY curve, as_of", [*names, *wp])
-        rejected = read_frame(
-            con, "SELECT r.load_id, l.file_name, r.line, r.raw, r.reason FROM rejected_rows r JOIN load_log l "
-                 f"USING (load_id) WHERE l.curve IN ({placeholders}) OR l.curve IS NULL ORDER BY r.load_id, r.line",
-            names)
+        loads = store.loads_in_scope(con, names, first, last)
+        builds = store.official_builds(con, names, first, last)
+        findings = store.findings_in_scope(con, names, first, last)
+        held = store.findings_in_scope(con, names, first, last, rejects_only=True)
+        rejected = store.rejected_in_scope(con, names)
         if first or last:  # rejected rows carry no date: keep those of the files in scope
             rejected = rejected[rejected["load_id"].isin(loads["load_id"])].reset_index(drop=True)
     return ReportData(

@@ -1,10 +1,12 @@
 """Par-yield bootstrap, vectorised over days x tenors, and par-bond pricing on a built curve.
 
-Convention (CONTRACT, "par yield"): a par yield ``c`` for tenor ``T`` on a curve compounded ``m``
-times a year is the coupon of a bond priced at 1 on the as-of date that pays ``c/m`` on each coupon
-date and 1 at maturity. Coupon dates step back from the *unadjusted* maturity (as-of + ``T`` with
-month-end clipping) by ``12/m`` months and are then rolled (modified following on the curve's
-calendar). When ``T`` is not a whole number of coupon periods the first period is short and pays
+Convention (CONTRACT, "par yield"): a par yield ``c`` for tenor ``T`` on a curve with ``m``
+coupons a year (``coupon_frequency``, by default the curve's compounding) is the coupon of a bond
+priced at 1 on the as-of date that pays ``c/m`` on each coupon date and 1 at maturity. The zero rates
+built from it are stored in the curve's compounding, whatever ``m`` is. Coupon dates step back from
+the *unadjusted* maturity (spot date + ``T`` with month-end clipping; the spot date is the as-of
+date unless ``spot_days`` is set) by ``12/m`` months and are then rolled (modified following on the
+curve's calendar). When ``T`` is not a whole number of coupon periods the first period is short and pays
 ``c/m * yearfrac(as_of, first coupon date) * m``. A tenor of one coupon period or less (and every
 day- or week-based tenor) is a single payment: ``D(T) = (1 + c/m)^(-m * tau)``. Year fractions use
 the curve's day count.
@@ -22,11 +24,14 @@ from __future__ import annotations
 
 from collections.abc import Sequence
 from dataclasses import dataclass
+from typing import TYPE_CHECKING
 
 import numpy as np
 
-from pipeline.config import CurveConfig, compounding_frequency
-from pipeline.dates import BusinessCalendar, add_months, as_days, maturity_dates, year_fraction
+if TYPE_CHECKING:  # the config imports the curve modules
+    from pipeline.config import CurveConfig
+
+from pipeline.dates import BusinessCalendar, add_months, as_days, maturity_dates, unadjusted_maturities, year_fraction
 from pipeline.tenors import Tenor, parse_tenor
 
 __all__ = ["ParLeg", "bootstrap_par", "par_bond_prices", "par_legs", "par_yields"]
@@ -55,11 +60,12 @@ class ParLeg:
 
 
 def _frequency(cfg: CurveConfig) -> int:
-    m = compounding_frequency(cfg.compounding)
+    """Coupons a year of the curve's par bonds (``cfg.coupons_per_year``)."""
+    m = cfg.coupons_per_year
     if not m:
         raise ValueError(
             f"curve {cfg.name!r}: par quotes need a coupon frequency; compounding = "
-            f"{cfg.compounding!r} has none (use annual, semiannual, quarterly or monthly)"
+            f"{cfg.compounding!r} has none (set coupon_frequency: annual, semiannual, quarterly or monthly)"
         )
     return m
 
@@ -77,7 +83,7 @@ def par_legs(as_of: object, tenors: Sequence[Tenor | str], calendar: BusinessCal
             tau = year_fraction(d, maturity, day_count)[:, None]
             legs.append(ParLeg(t, tau, np.full_like(tau, 1.0 / frequency), True))
             continue
-        unadjusted = add_months(d, t.months)
+        unadjusted = unadjusted_maturities(d, t, calendar)
         n_pay = -(-t.months // period)
         steps = np.arange(n_pay - 1, -1, -1) * period  # earliest coupon first
         dates = calendar.roll(add_months(unadjusted[:, None], -steps[None, :]))
@@ -264,8 +270,8 @@ def par_bond_prices(curves, tenors: Sequence[Tenor | str], coupons: np.ndarray, 
 
 
 def par_yields(curves, tenors: Sequence[Tenor | str], cfg: CurveConfig) -> np.ndarray:
-    """Par yields ``(D, T)`` (decimals) of ``curves`` under the CONTRACT convention, coupon frequency
-    from ``cfg.compounding``; NaN on days not built."""
+    """Par yields ``(D, T)`` (decimals) of ``curves`` under the CONTRACT convention, ``cfg.coupons_per_year``
+    coupons a year; NaN on days not built."""
     m = _frequency(cfg)
     legs = par_legs(curves.as_of, tenors, cfg.calendar, cfg.day_count, m)
     out = np.empty((len(curves.as_of), len(legs)))

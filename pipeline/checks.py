@@ -4,7 +4,7 @@ Every check returns a *findings* frame with the columns of the ``findings`` view
 which the caller adds):
 
 ``as_of``      the day the finding is about (a pandas datetime64 column of whole days)
-``check_name`` one of :data:`pipeline.config.CHECK_NAMES`
+``check_name`` one of :data:`CHECKS`
 ``severity``   ``reject`` | ``warn`` | ``info``, from ``cfg.severity[check_name]``
 ``tenor``      canonical label, ``"SHORT/LONG"`` for an inversion pair, or ``None`` for a whole day
 ``detail``     one human-readable line
@@ -24,17 +24,21 @@ is modified.
 from __future__ import annotations
 
 from collections.abc import Sequence
-from typing import Any
+from dataclasses import dataclass
+from typing import TYPE_CHECKING, Any
 
 import numpy as np
 import pandas as pd
 
-from pipeline.config import DEFAULT_SEVERITY, CurveConfig
 from pipeline.dates import as_days
-from pipeline.expectations import to_dates
 from pipeline.tenors import parse_tenor
 
+if TYPE_CHECKING:  # the config imports this module's registry
+    from pipeline.config import CurveConfig
+
 __all__ = [
+    "CHECKS",
+    "Check",
     "FINDING_COLUMNS",
     "EPISODE_COLUMNS",
     "curve_checks",
@@ -50,6 +54,36 @@ __all__ = [
     "stale_curves",
 ]
 
+
+
+@dataclass(frozen=True)
+class Check:
+    """A check's declaration: its ``findings.check_name``, the severity it has unless
+    ``checks.severity.<name>`` says otherwise, what raises it, and whether ``afterward check`` closes
+    its open findings on the days it re-checks (``rechecked``) so they are raised afresh."""
+
+    name: str
+    severity: str
+    raised_by: str          # load | check | build | daily
+    rechecked: bool = False
+
+
+# Every check, once. The config derives its keys and defaults from this; the check step derives which
+# findings a re-check closes. A new check is one line here and its function below (or in intake).
+CHECKS = (
+    Check("unparseable", "reject", "load"),            # pipeline.readers / pipeline.expectations
+    Check("out_of_range", "reject", "load"),           # pipeline.expectations
+    Check("duplicate", "warn", "load"),                # pipeline.intake
+    Check("missing_day", "warn", "check", rechecked=True),
+    Check("missing_tenor", "warn", "check", rechecked=True),
+    Check("stale_curve", "warn", "check", rechecked=True),
+    Check("jump", "reject", "check", rechecked=True),
+    Check("inversion", "info", "check", rechecked=True),
+    Check("negative_forward", "warn", "build"),        # curve_shape_checks, after a build
+    Check("non_monotone_discount", "warn", "build"),
+    Check("late_curve", "warn", "daily"),              # late_curve, by the daily job
+)
+DEFAULT_SEVERITY = {c.name: c.severity for c in CHECKS}
 FINDING_COLUMNS = ("as_of", "check_name", "severity", "tenor", "detail")
 EPISODE_COLUMNS = ("short_tenor", "long_tenor", "first_day", "last_day", "days", "deepest_bp")
 
@@ -204,6 +238,40 @@ def missing_days(as_of: Any, cfg: CurveConfig, *, previous: Any = None) -> pd.Da
     detail = ("no curve observed; gap of " + length.astype(str).astype(object) + " " + unit
               + " from " + _iso(first) + " to " + _iso(last))
     return _findings(gone, "missing_day", _severity(cfg, "missing_day"), None, detail)
+
+
+# --- late delivery --------------------------------------------------------------------------------
+
+def late_curve(last_observed: Any, now_local: Any, cfg: CurveConfig, *, zone: str = "") -> pd.DataFrame:
+    """``late_curve`` finding: the curve of the last expected observation day that was due by
+    ``now_local`` has not arrived.
+
+    A day's curve is due at ``cfg.late_after`` (HH:MM) on that day, in the schedule's time zone;
+    ``now_local`` is the wall-clock time there (naive, e.g. ``numpy.datetime64('2031-03-04T18:30')``).
+    Expected days are the calendar's business days, or month-ends for a monthly curve. At most one
+    finding, for the latest day due, and only when that day is after ``last_observed`` (the last day
+    the record holds; None for an empty curve, which is not late: it has not started). ``zone`` only
+    names the time zone in the detail.
+    """
+    if last_observed is None:
+        return empty_findings()
+    last = np.datetime64(last_observed, "D")
+    now = np.datetime64(now_local, "m")
+    today = now.astype("datetime64[D]")
+    hh, mm = (int(x) for x in cfg.late_after.split(":"))
+    cutoff = today if now >= today + np.timedelta64(hh * 60 + mm, "m") else today - np.timedelta64(1, "D")
+    lo = max(last + np.timedelta64(1, "D"), cutoff - np.timedelta64(70, "D"))
+    if lo > cutoff:
+        return empty_findings()
+    cal = cfg.calendar
+    expected = cal.month_ends(lo, cutoff) if cfg.frequency == "monthly" else cal.business_days(lo, cutoff)
+    expected = expected[(expected >= lo) & (expected <= cutoff)]
+    if len(expected) == 0:
+        return empty_findings()
+    due = expected[-1:]
+    where = f" {zone}" if zone else ""
+    detail = f"no curve for {due[0]} by {cfg.late_after}{where}; the last curve received is for {last}"
+    return _findings(due, "late_curve", _severity(cfg, "late_curve"), None, detail)
 
 
 # --- missing tenors -------------------------------------------------------------------------------
@@ -422,10 +490,13 @@ def jumps(
 # --- inversions -----------------------------------------------------------------------------------
 
 def _pair_spreads(
-    as_of: Any, tenors: Sequence[str], rates: Any, cfg: CurveConfig
+    as_of: Any, tenors: Sequence[str], rates: Any, cfg: CurveConfig, held: Any = None
 ) -> tuple[np.ndarray, list[tuple[str, str, np.ndarray, np.ndarray, np.ndarray]]]:
     days, labels, r = _sorted_panel(as_of, tenors, rates)
     c = _comparable(labels, r, cfg)
+    if held is not None and len(held):
+        # a day held back by a reject finding is not judged: as if it had no curve
+        c = np.where(np.isin(days, np.asarray(held, dtype=DAY))[:, None], np.nan, c)
     col = {t: j for j, t in enumerate(labels)}
     pairs = []
     for short, long in cfg.inversion_pairs:
@@ -436,13 +507,15 @@ def _pair_spreads(
     return days, pairs
 
 
-def pairs_inverted_first(as_of: Any, tenors: Sequence[str], rates: Any, cfg: CurveConfig) -> list[tuple[str, str]]:
+def pairs_inverted_first(as_of: Any, tenors: Sequence[str], rates: Any, cfg: CurveConfig, *,
+                         held: Any = None) -> list[tuple[str, str]]:
     """The inversion pairs (short, long labels) whose first judged day in the panel is inverted.
 
-    Judged and inverted as :func:`inversion_episodes` judges them, so a caller that reads only a
-    suffix of the history knows which pairs' runs may have begun before its first day.
+    Judged and inverted as :func:`inversion_episodes` judges them (``held`` days not judged), so a
+    caller that reads only a suffix of the history knows which pairs' runs may have begun before its
+    first day.
     """
-    _, pairs = _pair_spreads(as_of, tenors, rates, cfg)
+    _, pairs = _pair_spreads(as_of, tenors, rates, cfg, held)
     out = []
     for s, lg, _, _, spread in pairs:
         judged = np.flatnonzero(~np.isnan(spread))
@@ -468,16 +541,19 @@ def inversions(as_of: Any, tenors: Sequence[str], rates: Any, cfg: CurveConfig) 
     return _concat(out)
 
 
-def inversion_episodes(as_of: Any, tenors: Sequence[str], rates: Any, cfg: CurveConfig) -> pd.DataFrame:
+def inversion_episodes(as_of: Any, tenors: Sequence[str], rates: Any, cfg: CurveConfig, *,
+                       held: Any = None) -> pd.DataFrame:
     """Episodes of inversion per configured pair: columns ``short_tenor, long_tenor, first_day,
     last_day, days, deepest_bp``.
 
     An episode is a run of inverted days among the days on which the pair was *judged* (both tenors
-    quoted). A business day with no curve, or a day with either tenor missing, does not break a run;
-    a judged day that is not inverted does. ``days`` counts the inverted judged days;
-    ``deepest_bp`` is the most negative spread (long minus short, in bp, so always < 0).
+    quoted, and the day not in ``held``: days held back by an open reject finding, whose quotes the
+    record does not trust). A business day with no curve, a held day, or a day with either tenor
+    missing neither starts, extends nor breaks a run; a judged day that is not inverted breaks it.
+    ``days`` counts the inverted judged days; ``deepest_bp`` is the most negative spread (long minus
+    short, in bp, so always < 0).
     """
-    days, pairs = _pair_spreads(as_of, tenors, rates, cfg)
+    days, pairs = _pair_spreads(as_of, tenors, rates, cfg, held)
     frames = []
     for s, lg, _, _, spread in pairs:
         judged = ~np.isnan(spread)
@@ -568,6 +644,12 @@ def curve_shape_checks(as_of: Any, times: Any, discount_factors: Any, cfg: Curve
 
 # --- duplicates within a file ---------------------------------------------------------------------
 
+def _to_dates(values: pd.Series) -> pd.Series:
+    from pipeline.expectations import to_dates  # the row expectations' date reading (imports the config)
+
+    return to_dates(values)
+
+
 def duplicate_findings(rows: pd.DataFrame, cfg: CurveConfig | None = None) -> pd.DataFrame:
     """``duplicate`` findings: the same (day, tenor) more than once in one file with different rates.
 
@@ -582,7 +664,7 @@ def duplicate_findings(rows: pd.DataFrame, cfg: CurveConfig | None = None) -> pd
     if len(rows) == 0 or not need <= set(rows.columns):
         return empty_findings()
     sub = pd.DataFrame({
-        "as_of": to_dates(rows["as_of"]).to_numpy(),
+        "as_of": _to_dates(rows["as_of"]).to_numpy(),
         "tenor": rows["tenor"].astype(object).to_numpy(),
         "rate": pd.to_numeric(rows["rate"], errors="coerce").to_numpy(dtype=float),
         "line": rows["line"].to_numpy() if "line" in rows else np.arange(1, len(rows) + 1),

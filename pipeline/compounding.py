@@ -19,9 +19,16 @@ from __future__ import annotations
 
 import numpy as np
 
-from pipeline.config import COMPOUNDINGS, compounding_frequency
+__all__ = ["COMPOUNDINGS", "compounding_frequency", "discount_from_rate", "from_continuous", "rate_from_discount",
+           "to_continuous"]
 
-__all__ = ["discount_from_rate", "from_continuous", "rate_from_discount", "to_continuous"]
+COMPOUNDINGS = ("continuous", "annual", "semiannual", "quarterly", "monthly", "simple")
+_FREQ = {"continuous": None, "simple": 0, "annual": 1, "semiannual": 2, "quarterly": 4, "monthly": 12}
+
+
+def compounding_frequency(compounding: str) -> int | None:
+    """Payments a year for ``compounding``: ``None`` continuous, ``0`` simple, else 1, 2, 4 or 12."""
+    return _FREQ[compounding]
 
 
 def _frequency(compounding: str) -> int | None:

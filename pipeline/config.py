@@ -7,19 +7,30 @@ allowed values; nothing downstream sees an unchecked setting.
 from __future__ import annotations
 
 import os
+import re
 import tomllib
 from dataclasses import dataclass, field
+from datetime import date, datetime
 from pathlib import Path
 from typing import Any
 
 import numpy as np
 
+from pipeline.checks import CHECKS, DEFAULT_SEVERITY
+from pipeline.compounding import COMPOUNDINGS, compounding_frequency
+from pipeline.curves.build import QUOTE_KINDS
+from pipeline.curves.methods import METHOD_NAMES
 from pipeline.dates import DAY_COUNTS, WEEKDAYS, BusinessCalendar
+from pipeline.errors import ConfigError
+from pipeline.readers.options import DEFAULT_MISSING, ReadOptions
 from pipeline.tenors import Tenor, TenorError, parse_tenor
+from pipeline.term_structure.acm import DEFAULT_FACTORS
+from pipeline.term_structure.panel import DEFAULT_MAX_MONTHS
 
 __all__ = [
     "CHECK_NAMES",
     "COMPOUNDINGS",
+    "COUPON_FREQUENCIES",
     "INTERPOLATIONS",
     "QUOTE_KINDS",
     "SEVERITIES",
@@ -32,41 +43,16 @@ __all__ = [
     "parse_config",
 ]
 
-QUOTE_KINDS = ("zero", "par", "discount", "simple")
-COMPOUNDINGS = ("continuous", "annual", "semiannual", "quarterly", "monthly", "simple")
+COUPON_FREQUENCIES = ("annual", "semiannual", "quarterly", "monthly")
+# other spellings of a day count that name the same convention
+_DAY_COUNT_ALIASES = {"act/act isda": "ACT/ACT", "act/act (isda)": "ACT/ACT", "actual/actual (isda)": "ACT/ACT",
+                      "act/365 fixed": "ACT/365F", "act/365f": "ACT/365F"}
 UNITS = ("percent", "decimal", "bp")
-INTERPOLATIONS = ("linear_zero", "log_linear_discount", "monotone_convex", "cubic_zero", "nss")
+INTERPOLATIONS = METHOD_NAMES                       # derived from the registered methods
 FREQUENCIES = ("daily", "monthly")
 DATE_FORMATS = ("iso", "day_first", "month_first")
 SEVERITIES = ("reject", "warn", "info")
-CHECK_NAMES = (
-    "unparseable", "out_of_range", "duplicate", "missing_day", "missing_tenor", "stale_curve",
-    "jump", "inversion", "negative_forward", "non_monotone_discount",
-)
-DEFAULT_SEVERITY = {
-    "unparseable": "reject",
-    "out_of_range": "reject",
-    "duplicate": "warn",
-    "missing_day": "warn",
-    "missing_tenor": "warn",
-    "stale_curve": "warn",
-    "jump": "reject",
-    "inversion": "info",
-    "negative_forward": "warn",
-    "non_monotone_discount": "warn",
-}
-_FREQ = {"continuous": None, "simple": 0, "annual": 1, "semiannual": 2, "quarterly": 4, "monthly": 12}
-
-
-class ConfigError(ValueError):
-    """A bad configuration; the message is one line naming the key and what is allowed."""
-
-
-def compounding_frequency(compounding: str) -> int | None:
-    """Payments a year for ``compounding``: ``None`` continuous, ``0`` simple, else 1, 2, 4 or 12."""
-    return _FREQ[compounding]
-
-
+CHECK_NAMES = tuple(c.name for c in CHECKS)      # declared once, beside the checks
 @dataclass(frozen=True)
 class CurveConfig:
     """One curve's conventions, as written under ``[curves.NAME]``."""
@@ -91,10 +77,31 @@ class CurveConfig:
     inversion_pairs: tuple[tuple[Tenor, Tenor], ...] = ()
     severity: dict[str, str] = field(default_factory=lambda: dict(DEFAULT_SEVERITY))
     premium_window_days: int = 250
+    late_after: str = "18:00"          # HH:MM in the schedule's time zone: a day's curve is due by then
+    coupon_frequency: str | None = None
+    read: ReadOptions = field(default_factory=ReadOptions)
+    model_max_months: int = DEFAULT_MAX_MONTHS   # model.max_months: the panel's longest maturity (months)
+    model_factors: int = DEFAULT_FACTORS         # model.factors: principal components in the ACM state
 
     @property
     def frequency_per_year(self) -> int | None:
+        """Compounding periods a year of the curve's zero and forward rates (see
+        :func:`compounding_frequency`)."""
         return compounding_frequency(self.compounding)
+
+    @property
+    def coupons_per_year(self) -> int | None:
+        """Coupons a year of the curve's par bonds: ``coupon_frequency`` when set, else the
+        compounding's frequency when that is annual, semiannual, quarterly or monthly; ``None``
+        when neither gives one (continuous or simple compounding without ``coupon_frequency``)."""
+        if self.coupon_frequency is not None:
+            return compounding_frequency(self.coupon_frequency)
+        return compounding_frequency(self.compounding) or None
+
+    @property
+    def spot_days(self) -> int:
+        """The spot lag in business days (kept on :attr:`calendar`, which every maturity uses)."""
+        return self.calendar.spot_days
 
     @property
     def tenor_labels(self) -> tuple[str, ...]:
@@ -206,16 +213,31 @@ def _month_tenors(value: Any, key: str, *, allow_zero: bool) -> tuple[Tenor, ...
     return tenors
 
 
+_ISO_DAY = re.compile(r"[0-9]{4}-[0-9]{2}-[0-9]{2}")
+
+
+def _iso_day(text: str) -> np.datetime64 | None:
+    """``YYYY-MM-DD`` exactly, as a day; None otherwise (numpy alone would read ``2031`` as 1 January
+    and ``NaT`` as no date)."""
+    if not _ISO_DAY.fullmatch(text):
+        return None
+    try:
+        return np.datetime64(text, "D")
+    except ValueError:  # 2031-02-30
+        return None
+
+
 def _holidays(cal: dict[str, Any], base: Path, where: str) -> list[np.datetime64]:
     out: list[np.datetime64] = []
     listed = cal.get("holidays", [])
     if not isinstance(listed, list):
         raise ConfigError(f"{where}calendar.holidays must be a list of ISO dates")
     for v in listed:
-        try:
-            out.append(np.datetime64(str(v), "D"))
-        except ValueError:
-            raise ConfigError(f"{where}calendar.holidays: {v!r} is not an ISO date (YYYY-MM-DD)") from None
+        # a quoted "2031-12-25" or a bare TOML date 2031-12-25 (str() gives the same text)
+        day = _iso_day(str(v)) if isinstance(v, str | date) and not isinstance(v, datetime) else None
+        if day is None:
+            raise ConfigError(f"{where}calendar.holidays: {v!r} is not an ISO date (YYYY-MM-DD)")
+        out.append(day)
     if "holidays_file" in cal:
         hp = Path(str(cal["holidays_file"]))
         hp = hp if hp.is_absolute() else base / hp
@@ -225,10 +247,10 @@ def _holidays(cal: dict[str, Any], base: Path, where: str) -> list[np.datetime64
             text = line.split(",")[0].strip()
             if not text or text.startswith("#") or text.lower() in ("date", "holiday"):
                 continue
-            try:
-                out.append(np.datetime64(text, "D"))
-            except ValueError:
-                raise ConfigError(f"{hp}:{n}: {text!r} is not an ISO date (YYYY-MM-DD)") from None
+            day = _iso_day(text)
+            if day is None:
+                raise ConfigError(f"{hp}:{n}: {text!r} is not an ISO date (YYYY-MM-DD)")
+            out.append(day)
     return out
 
 
@@ -236,7 +258,8 @@ def _parse_curve(name: str, t: dict[str, Any], base: Path) -> CurveConfig:
     w = f"curves.{name}."
     allowed = {
         "files", "quote", "compounding", "day_count", "units", "interpolation", "tenors", "frequency",
-        "calendar", "forward", "realize", "checks", "date_format", "audit",
+        "calendar", "forward", "realize", "checks", "date_format", "audit", "spot_days", "coupon_frequency",
+        "read", "model",
     }
     _check_keys(t, allowed, w)
     if "tenors" not in t:
@@ -260,7 +283,11 @@ def _parse_curve(name: str, t: dict[str, Any], base: Path) -> CurveConfig:
         norm_weekend.append(match[0])
     if len(set(norm_weekend)) == 7:
         raise ConfigError(f"{w}calendar.weekend cannot hold all seven days")
-    calendar = BusinessCalendar.of(norm_weekend, _holidays(cal, base, w))
+    spot_days = _number(t, "spot_days", 0, w, integer=True)
+    if spot_days > 10:
+        raise ConfigError(f"{w}spot_days = {spot_days} must be an integer from 0 to 10 (business days)")
+    calendar = BusinessCalendar.of(norm_weekend, _holidays(cal, base, w), spot_days)
+    _check_day_tenors(tenors, spot_days, f"{w}tenors")
 
     fwd = t.get("forward", {})
     if not isinstance(fwd, dict):
@@ -279,7 +306,11 @@ def _parse_curve(name: str, t: dict[str, Any], base: Path) -> CurveConfig:
     chk = t.get("checks", {})
     if not isinstance(chk, dict):
         raise ConfigError(f"{w}checks must be a table")
-    _check_keys(chk, {"jump_bp", "inversion_pairs", "severity", "stale_days", "outlier_mads"}, f"{w}checks.")
+    _check_keys(chk, {"jump_bp", "inversion_pairs", "severity", "stale_days", "outlier_mads", "late_after"},
+                f"{w}checks.")
+    late_after = chk.get("late_after", "18:00")
+    if not (isinstance(late_after, str) and re.fullmatch(r"([01]\d|2[0-3]):[0-5]\d", late_after)):
+        raise ConfigError(f"{w}checks.late_after = {late_after!r} is not a time of day HH:MM (e.g. \"18:00\")")
     jump_bp = float(_number(chk, "jump_bp", 75, f"{w}checks.", minimum=0))
     stale_days = _number(chk, "stale_days", 5, f"{w}checks.", integer=True, minimum=2)
     outlier_mads = float(_number(chk, "outlier_mads", 8, f"{w}checks.", minimum=1))
@@ -309,6 +340,17 @@ def _parse_curve(name: str, t: dict[str, Any], base: Path) -> CurveConfig:
     _check_keys(aud, {"premium_window_days"}, f"{w}audit.")
     window = _number(aud, "premium_window_days", 250, f"{w}audit.", integer=True, minimum=2)
 
+    read = _read_options(t.get("read", {}), f"{w}read")
+    max_months, factors = _model(t.get("model", {}), f"{w}model.")
+    quote = _choice(t, "quote", QUOTE_KINDS, "zero", w)
+    compounding = _choice(t, "compounding", COMPOUNDINGS, "continuous", w)
+    coupon_frequency = None
+    if "coupon_frequency" in t:
+        coupon_frequency = _choice(t, "coupon_frequency", COUPON_FREQUENCIES, "annual", w)
+    elif quote == "par" and compounding not in COUPON_FREQUENCIES:
+        raise ConfigError(f"{w}coupon_frequency is required for par quotes when compounding = {compounding!r}; "
+                          f"allowed: {', '.join(COUPON_FREQUENCIES)}")
+
     files = t.get("files", f"{name}_*.csv")
     if not isinstance(files, str) or not files:
         raise ConfigError(f"{w}files must be a file-name glob such as \"{name}_*.csv\"")
@@ -316,9 +358,9 @@ def _parse_curve(name: str, t: dict[str, Any], base: Path) -> CurveConfig:
     return CurveConfig(
         name=name,
         files=files,
-        quote=_choice(t, "quote", QUOTE_KINDS, "zero", w),
-        compounding=_choice(t, "compounding", COMPOUNDINGS, "continuous", w),
-        day_count=_choice(t, "day_count", DAY_COUNTS, "ACT/365F", w),
+        quote=quote,
+        compounding=compounding,
+        day_count=_day_count(t, w),
         units=_choice(t, "units", UNITS, "percent", w),
         interpolation=_choice(t, "interpolation", INTERPOLATIONS, "monotone_convex", w),
         tenors=tenors,
@@ -329,12 +371,81 @@ def _parse_curve(name: str, t: dict[str, Any], base: Path) -> CurveConfig:
         forward_tenors=fwd_tenors,
         tolerance_days=tolerance,
         jump_bp=jump_bp,
+        late_after=late_after,
         outlier_mads=outlier_mads,
         stale_days=stale_days,
         inversion_pairs=tuple(pairs),
         severity=severity,
         premium_window_days=window,
+        coupon_frequency=coupon_frequency,
+        read=read,
+        model_max_months=max_months,
+        model_factors=factors,
     )
+
+
+# the model's limits: a panel reaches at most 50 years; the state holds at most 10 components
+# (the published model uses 5; more than a handful fit interpolation noise)
+MODEL_MAX_MONTHS = (24, 600)
+MODEL_FACTORS = (1, 10)
+
+
+def _model(m: Any, w: str) -> tuple[int, int]:
+    """``model.max_months`` and ``model.factors``, whole numbers in their ranges."""
+    if not isinstance(m, dict):
+        raise ConfigError(f"{w[:-1]} must be a table with max_months / factors")
+    _check_keys(m, {"max_months", "factors"}, w)
+    out = []
+    for key, default, (lo, hi) in (("max_months", DEFAULT_MAX_MONTHS, MODEL_MAX_MONTHS),
+                                   ("factors", DEFAULT_FACTORS, MODEL_FACTORS)):
+        value = m.get(key, default)
+        if isinstance(value, bool) or not isinstance(value, int) or not lo <= value <= hi:
+            raise ConfigError(f"{w}{key} = {value!r} is not allowed; allowed: a whole number from {lo} to {hi}")
+        out.append(value)
+    return out[0], out[1]
+
+
+def _day_count(t: dict[str, Any], w: str) -> str:
+    value = t.get("day_count", "ACT/365F")
+    if isinstance(value, str):
+        alias = _DAY_COUNT_ALIASES.get(" ".join(value.lower().split()))
+        if alias is not None:
+            return alias
+    shown = tuple("ACT/ACT (ISDA)" if d == "ACT/ACT" else d for d in DAY_COUNTS)
+    try:
+        return _choice(t, "day_count", DAY_COUNTS, "ACT/365F", w)
+    except ConfigError:
+        raise ConfigError(f"{w}day_count = {value!r} is not allowed; allowed: {', '.join(shown)}") from None
+
+
+def _check_day_tenors(tenors: tuple[Tenor, ...], spot_days: int, key: str) -> None:
+    """Refuse two business-day tenors that always mature on the same day (ON = 1D, TN = 2D, SN =
+    spot + 1): a curve cannot have two nodes on one date."""
+    seen: dict[int, str] = {}
+    for t in tenors:
+        days = spot_days + 1 if t.unit == "SN" else t.business_days
+        if days is None:
+            continue
+        if days in seen:
+            raise ConfigError(f"{key}: {seen[days]} and {t.label} both mature {days} business day(s) after the "
+                              f"as-of date (spot_days = {spot_days}); list one of them")
+        seen[days] = t.label
+
+
+def _read_options(r: Any, w: str) -> ReadOptions:
+    if not isinstance(r, dict):
+        raise ConfigError(f"{w} must be a table with skip_rows / sheet / missing")
+    _check_keys(r, {"skip_rows", "sheet", "missing"}, f"{w}.")
+    skip = _number(r, "skip_rows", 0, f"{w}.", integer=True)
+    sheet = r.get("sheet", 0)
+    if isinstance(sheet, bool) or not (isinstance(sheet, str) and sheet.strip()
+                                       or isinstance(sheet, int) and sheet >= 0):
+        raise ConfigError(f"{w}.sheet = {sheet!r} must be a sheet name or a 0-based sheet number")
+    missing = r.get("missing", list(DEFAULT_MISSING))
+    if not isinstance(missing, list) or not all(isinstance(m, str) for m in missing):
+        raise ConfigError(f"{w}.missing must be a list of strings such as [\"N/A\", \"-\"]")
+    return ReadOptions(skip_rows=skip, sheet=sheet.strip() if isinstance(sheet, str) else sheet,
+                       missing=tuple(missing))
 
 
 def _path(table: dict[str, Any], key: str, default: str, base: Path, where: str) -> Path:

@@ -21,12 +21,21 @@ timezone = "local"                   # "local" (this machine's zone) or an IANA 
 files = "govt_*.csv"                 # glob (in the inbox) routing files to this curve
 quote = "par"                        # zero | par | discount | simple
 compounding = "semiannual"           # continuous | annual | semiannual | quarterly | monthly | simple
-day_count = "ACT/365F"               # ACT/365F | ACT/360 | 30/360 | 30E/360 | ACT/ACT
+                                     # (of the zero and forward rates shown; par quotes: see coupon_frequency)
+# coupon_frequency = "annual"        # par quotes only: annual | semiannual | quarterly | monthly coupons;
+                                     # default: the compounding (required when that is continuous or simple)
+day_count = "ACT/365F"               # ACT/365F | ACT/360 | 30/360 | 30E/360 | ACT/ACT (ISDA)
+spot_days = 0                        # spot lag in business days: nW, nM, nY maturities run from the spot
+                                     # date (as-of + spot_days); ON, TN, nD from the as-of date; SN = spot + 1
 units = "percent"                    # percent | decimal | bp   (of the numbers in the files)
 interpolation = "monotone_convex"    # linear_zero | log_linear_discount | monotone_convex | cubic_zero | nss
 tenors = ["1M", "3M", "6M", "1Y", "2Y", "3Y", "5Y", "7Y", "10Y", "20Y", "30Y"]   # expected tenors
+                                     # labels: ON, TN, SN, nD (business days), nW, nM, nY
 frequency = "daily"                  # daily | monthly (observed on the last business day of each month)
 date_format = "iso"                  # iso | day_first | month_first (ISO dates are always accepted)
+read.skip_rows = 0                   # title lines (sheet rows) above the header to skip (CSV, .xlsx)
+read.sheet = 0                       # .xlsx: the sheet's name, or its number counting from 0
+read.missing = ["", "N/A", "#N/A", "NA", "-", "--", "null"]   # rate cells that mean "no quote" (any case)
 calendar.weekend = ["Sat", "Sun"]    # may be empty
 calendar.holidays = []               # e.g. ["2031-12-25"]; and/or calendar.holidays_file = "holidays.csv"
 forward.starts = ["0M", "3M", "6M", "1Y", "2Y", "3Y", "5Y", "10Y"]
@@ -35,4 +44,7 @@ realize.tolerance_days = 3           # business days after a target date to look
 checks.jump_bp = 75                  # a day-on-day move larger than this is flagged
 checks.inversion_pairs = [["3M", "10Y"], ["2Y", "10Y"]]
 # checks.severity.jump = "reject"    # reject | warn | info, per check name
+model.max_months = 120               # afterward model: month-end panel up to this maturity (24 .. 600 months;
+                                     # at most the longest quoted tenor)
+model.factors = 5                    # principal components in the term-premium model's state (1 .. 10)
 '''

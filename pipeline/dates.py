@@ -23,12 +23,14 @@ __all__ = [
     "as_days",
     "day_count_days",
     "maturity_dates",
+    "spot_dates",
+    "unadjusted_maturities",
     "year_fraction",
 ]
 
 DAY = np.dtype("datetime64[D]")
 WEEKDAYS = ("Mon", "Tue", "Wed", "Thu", "Fri", "Sat", "Sun")
-DAY_COUNTS = ("ACT/365F", "ACT/360", "30/360", "30E/360", "ACT/ACT")
+DAY_COUNTS = ("ACT/365F", "ACT/360", "30/360", "30E/360", "ACT/ACT")  # ACT/ACT is the ISDA variant
 
 
 def as_days(values: object) -> np.ndarray:
@@ -47,16 +49,24 @@ def as_days(values: object) -> np.ndarray:
 
 @dataclass(frozen=True)
 class BusinessCalendar:
-    """Weekend days plus holidays. ``weekend`` holds names from :data:`WEEKDAYS`; it may be empty."""
+    """Weekend days plus holidays. ``weekend`` holds names from :data:`WEEKDAYS`; it may be empty.
+
+    ``spot_days`` is the curve's spot lag in business days (0 = tenors run from the as-of date): it
+    travels with the calendar because every maturity computed on it needs both (see
+    :func:`maturity_dates`). It plays no part in rolling or counting business days.
+    """
 
     weekend: tuple[str, ...] = ("Sat", "Sun")
     holidays: tuple[np.datetime64, ...] = ()
+    spot_days: int = 0
     _cal: np.busdaycalendar = field(init=False, repr=False, compare=False)
 
     def __post_init__(self) -> None:
         unknown = [d for d in self.weekend if d not in WEEKDAYS]
         if unknown:
             raise ValueError(f"unknown weekday {unknown[0]!r}; allowed: {', '.join(WEEKDAYS)}")
+        if isinstance(self.spot_days, bool) or not isinstance(self.spot_days, int | np.integer) or self.spot_days < 0:
+            raise ValueError(f"spot_days = {self.spot_days!r} must be an integer >= 0")
         mask = [0 if d in self.weekend else 1 for d in WEEKDAYS]
         hol = np.unique(as_days(list(self.holidays))) if self.holidays else np.array([], dtype=DAY)
         object.__setattr__(self, "holidays", tuple(hol))
@@ -64,11 +74,12 @@ class BusinessCalendar:
 
     def __reduce__(self) -> tuple:
         # np.busdaycalendar cannot be pickled: rebuild it from the fields (worker processes need this)
-        return (type(self), (self.weekend, self.holidays))
+        return (type(self), (self.weekend, self.holidays, self.spot_days))
 
     @classmethod
-    def of(cls, weekend: Iterable[str] = ("Sat", "Sun"), holidays: Iterable[object] = ()) -> BusinessCalendar:
-        return cls(tuple(weekend), tuple(as_days(list(holidays))) if holidays else ())
+    def of(cls, weekend: Iterable[str] = ("Sat", "Sun"), holidays: Iterable[object] = (),
+           spot_days: int = 0) -> BusinessCalendar:
+        return cls(tuple(weekend), tuple(as_days(list(holidays))) if holidays else (), int(spot_days))
 
     def is_business_day(self, dates: object) -> np.ndarray:
         return np.is_busday(as_days(dates), busdaycal=self._cal)
@@ -121,23 +132,47 @@ def add_months(dates: object, months: int | np.ndarray) -> np.ndarray:
     return target.astype(DAY) + np.minimum(day, last_day).astype("timedelta64[D]")
 
 
+def spot_dates(as_of: object, calendar: BusinessCalendar) -> np.ndarray:
+    """The spot date of each as-of date: ``calendar.spot_days`` business days later (an as-of date
+    that is not a business day is rolled forward first); the as-of date itself when the lag is 0."""
+    d = as_days(as_of)
+    if not calendar.spot_days:
+        return d
+    return calendar.add_business_days(d, calendar.spot_days)
+
+
+def unadjusted_maturities(as_of: object, tenor: Tenor | str, calendar: BusinessCalendar) -> np.ndarray:
+    """The spot date plus a month, year or week tenor by calendar arithmetic, before rolling (month
+    tenors clip to the month's end). A par bond's coupon dates step back from this date."""
+    t = parse_tenor(tenor, allow_zero=True)
+    spot = spot_dates(as_of, calendar)
+    if t.months is not None:
+        return add_months(spot, t.months)
+    if t.unit == "W":
+        return spot + np.timedelta64(t.calendar_days, "D")
+    raise ValueError(f"tenor {t.label} counts business days; it has no unadjusted maturity")
+
+
 def maturity_dates(
     as_of: object, tenor: Tenor | str, calendar: BusinessCalendar, convention: str = "modified_following"
 ) -> np.ndarray:
-    """Maturity of ``tenor`` from each as-of date: calendar arithmetic, then rolled on ``calendar``.
+    """Maturity of ``tenor`` from each as-of date ``(...)`` datetime64[D], same shape.
 
-    ``ON`` is one business day after the as-of date. Month and year tenors clip to the month's end
-    before rolling; day and week tenors add calendar days.
+    * ``ON``, ``TN`` and ``nD``: 1, 2 and n business days after the as-of date (an as-of date that is
+      not a business day is rolled forward first), whatever the spot lag: as QuantLib's
+      ``Calendar.advance(d, n, Days)``, which counts business days.
+    * ``SN``: one business day after the spot date.
+    * ``nW``, ``nM``, ``nY``: from the spot date (as-of + ``calendar.spot_days`` business days; the
+      as-of date when that is 0), ``7n`` calendar days or calendar months (clipped to the month's
+      end), then rolled by ``convention`` (modified following) on ``calendar``.
     """
     t = parse_tenor(tenor, allow_zero=True)
     d = as_days(as_of)
-    if t.unit == "ON":
-        return calendar.add_business_days(d, 1)
-    if t.months is not None:
-        raw = add_months(d, t.months)
-    else:
-        raw = d + np.timedelta64(t.calendar_days, "D")
-    return calendar.roll(raw, convention)
+    if t.business_days is not None:
+        return calendar.add_business_days(d, t.business_days)
+    if t.unit == "SN":
+        return calendar.add_business_days(d, calendar.spot_days + 1)
+    return calendar.roll(unadjusted_maturities(d, t, calendar), convention)
 
 
 def _ymd(d: np.ndarray) -> tuple[np.ndarray, np.ndarray, np.ndarray]:

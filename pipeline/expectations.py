@@ -14,6 +14,11 @@ The band is for decimals (the reader has already applied ``units``): -5 % .. +40
 simple rates (negative rates are legal), and (0, 1.5] for discount factors. A row failing any
 null-check is ``unparseable``; a row that parsed but breaks a domain rule is ``out_of_range``.
 
+A failing row's reason is for the person who wrote the file, not for a reader of this module: it
+quotes the number as the file wrote it and in the file's units, and the band in those units
+(``out of range: rate 334 (percent) outside the plausible band -5 % to 40 % (tenor 3M)``); it
+never names a Great Expectations rule (those stay in the run's ``summary``).
+
 Great Expectations takes about 2.6 s to import, so it is imported on first use, and the context,
 suites and validation definitions are built once per process and cached per curve configuration.
 Nothing here prints, opens the store or keeps state beyond that cache.
@@ -30,10 +35,12 @@ import numpy as np
 import pandas as pd
 
 from pipeline.config import CurveConfig
+from pipeline.readers.options import UNIT_DIVISORS
+from pipeline.wording import band_text, number_text, units_name
 
 __all__ = ["RATE_BANDS", "RowValidation", "rate_band", "suite_name", "to_dates", "validate_rows"]
 
-ROW_COLUMNS = ("line", "as_of", "tenor", "rate", "raw")
+ROW_COLUMNS = ("line", "as_of", "tenor", "rate", "value", "raw")   # value: optional
 
 # (min, max, strict_min) as decimals; see the module docstring for why these bounds.
 RATE_BANDS: dict[str, tuple[float, float, bool]] = {
@@ -45,9 +52,18 @@ RATE_BANDS: dict[str, tuple[float, float, bool]] = {
 
 # why a null means the cell could not be read, in words for the rejected row's reason
 _NULL_WHAT = {
-    "as_of": "as_of is missing or not a date",
-    "tenor": "tenor is missing or not a tenor label",
-    "rate": "rate is missing or not a number",
+    "as_of": "the date is missing or not a date",
+    "tenor": "the tenor is missing or not a tenor label",
+    "rate": "the rate is missing or not a number",
+}
+
+# what each rule makes sure of, for a row held back because the rule itself could not be evaluated
+_RULE_WHAT = {
+    ("expect_column_values_to_not_be_null", "as_of"): "the date was read",
+    ("expect_column_values_to_not_be_null", "tenor"): "the tenor was read",
+    ("expect_column_values_to_not_be_null", "rate"): "the rate was read",
+    ("expect_column_values_to_be_in_set", "tenor"): "the tenor is one of the curve's tenors",
+    ("expect_column_values_to_be_between", "rate"): "the rate is within the plausible band",
 }
 
 _LOCK = threading.Lock()
@@ -158,10 +174,6 @@ def to_dates(values: pd.Series) -> pd.Series:
     return pd.to_datetime(values, errors="coerce", format="ISO8601")
 
 
-def _fmt_rate(values: np.ndarray) -> np.ndarray:
-    return np.array([f"{v:.6g}" for v in values], dtype=object)
-
-
 def _expectation_column(res: Any) -> str | None:
     return res.expectation_config.kwargs.get("column")
 
@@ -174,10 +186,13 @@ def validate_rows(rows: pd.DataFrame, cfg: CurveConfig) -> RowValidation:
     ``units`` already applied, ``NaN`` where the cell held text) and ``raw`` (the source line). Empty
     cells are missing quotes, not rows: the reader should not pass them here.
 
-    Returns a :class:`RowValidation`: per row ``ok``; for failing rows a ``reason`` naming each
-    failed expectation (several joined by ``"; "``), e.g.
-    ``"expect_column_values_to_be_between: rate 0.45 outside [-0.05, 0.4]"``, and a ``check_name``
-    (``"unparseable"`` if a null-check failed, else ``"out_of_range"``). The input is not modified.
+    An optional column ``value`` holds each number as the file wrote it, in the curve's ``units``;
+    without it the value is recovered from ``rate``.
+
+    Returns a :class:`RowValidation`: per row ``ok``; for failing rows a plain ``reason`` (several
+    joined by ``"; "``) in the file's language, e.g. ``"out of range: rate 45 (percent) outside the
+    plausible band -5 % to 40 % (tenor 1Y)"``, and a ``check_name`` (``"unparseable"`` if a
+    null-check failed, else ``"out_of_range"``). The input is not modified.
     """
     n = len(rows)
     name = suite_name(cfg)
@@ -198,9 +213,22 @@ def validate_rows(rows: pd.DataFrame, cfg: CurveConfig) -> RowValidation:
         )
 
     parts: list[np.ndarray] = []  # one object array of reason-or-None per expectation
+    # the number as the file wrote it: the reader's own value where given, else the decimal scaled back
+    if "value" in rows:
+        values = pd.to_numeric(rows["value"], errors="coerce").to_numpy(dtype=float)
+    else:
+        values = frame["rate"].to_numpy() * UNIT_DIVISORS[cfg.units]
+        # 0.45 * 100 is 45.00000000000001: undo the scaling's float noise as the reader's rounding does
+        with np.errstate(over="ignore", invalid="ignore"):
+            rounded = np.round(values, 10)
+        values = np.where(np.isfinite(rounded), rounded, values)
+    tenors = frame["tenor"].to_numpy(dtype=object)
+    tenor_note = np.where(pd.isna(tenors), "", " (tenor " + tenors.astype(str).astype(object) + ")").astype(object)
     unparseable = np.zeros(n, dtype=bool)
     per_expectation = []
-    band = f"{'(' if strict_min else '['}{lo:g}, {hi:g}]"
+    band = band_text(lo, hi, strict_min, cfg.units)
+    what = "discount factor" if cfg.quote == "discount" else "rate"
+    unit = units_name(cfg.units)
     for res in result.results:
         kind = res.expectation_config.type
         column = _expectation_column(res)
@@ -214,24 +242,29 @@ def validate_rows(rows: pd.DataFrame, cfg: CurveConfig) -> RowValidation:
             "unexpected_count": int(r.get("unexpected_count") or 0),
             "raised_exception": failed_to_run,
         })
+        text = np.full(n, None, dtype=object)
         if failed_to_run:
-            # the expectation could not be evaluated: reject every row rather than let one through
-            idx = np.arange(n)
+            # the rule could not be evaluated: hold back every row rather than let one through unchecked
+            rule = _RULE_WHAT.get((kind, column), f"the {column} is valid")
+            text[:] = f"not checked: the check that {rule} could not run, so the row is held back"
+            if kind == "expect_column_values_to_not_be_null":
+                unparseable[:] = True
+            parts.append(text)
+            continue
         if idx.size == 0:
             continue
-        text = np.full(n, None, dtype=object)
         if kind == "expect_column_values_to_not_be_null":
-            msg = f"{kind}: {_NULL_WHAT.get(column, f'{column} is missing')}"
-            text[idx] = msg
+            text[idx] = f"unparseable: {_NULL_WHAT.get(column, f'the {column} is missing')}"
             unparseable[idx] = True
         elif kind == "expect_column_values_to_be_in_set":
-            vals = frame["tenor"].to_numpy(dtype=object)[idx]
-            text[idx] = [f"{kind}: tenor {v} is not a tenor of curve {cfg.name}" for v in vals]
+            vals = tenors[idx].astype(str).astype(object)
+            text[idx] = "out of range: tenor " + vals + f" is not one of curves.{cfg.name}.tenors"
         elif kind == "expect_column_values_to_be_between":
-            vals = _fmt_rate(frame["rate"].to_numpy()[idx])
-            text[idx] = f"{kind}: rate " + vals + f" outside {band}"
+            written = number_text(values[idx])
+            text[idx] = (f"out of range: {what} " + written + f" ({unit}) outside the plausible band {band}"
+                         + tenor_note[idx])
         else:  # pragma: no cover - the suite holds only the kinds above
-            text[idx] = f"{kind}: {column} failed"
+            text[idx] = f"out of range: the {column} failed a check"
         parts.append(text)
 
     reasons = np.full(n, None, dtype=object)

@@ -21,14 +21,16 @@ import pandas as pd
 from pipeline.config import Config, ConfigError, CurveConfig
 from pipeline.dates import maturity_dates
 from pipeline.readers import ReadResult, to_decimal
+from pipeline.wording import SHOWN, first_items, more_text, number_text, units_name
 
 __all__ = ["Intake", "REJECT_COLUMNS", "ROW_COLUMNS", "load_findings", "prepare_many", "prepare_quotes", "route_curve",
            "validate_intakes"]
 
 REJECT_COLUMNS = ["line", "raw", "reason", "check_name"]
-ROW_COLUMNS = ["curve", "as_of", "tenor", "maturity_date", "rate", "line", "raw"]
+# ``value`` is the number as the file wrote it, in the file's units (``rate`` is its decimal): reasons quote it
+ROW_COLUMNS = ["curve", "as_of", "tenor", "maturity_date", "rate", "value", "line", "raw"]
 
-# rows of one curve (line, as_of, tenor, rate, raw) and its config -> (ok mask, reasons, checks, summary)
+# rows of one curve (line, as_of, tenor, rate, value, raw) and its config -> (ok mask, reasons, checks, summary)
 RowValidator = Callable[[pd.DataFrame, CurveConfig], tuple[np.ndarray, pd.Series, pd.Series, dict]]
 
 
@@ -36,7 +38,7 @@ RowValidator = Callable[[pd.DataFrame, CurveConfig], tuple[np.ndarray, pd.Series
 class Intake:
     rows: pd.DataFrame            # ROW_COLUMNS
     rejected: pd.DataFrame        # REJECT_COLUMNS
-    duplicates: pd.DataFrame      # curve, as_of, tenor, lines, detail: same key twice with different values
+    duplicates: pd.DataFrame      # curve, as_of, tenor, rows, detail: same key twice with different values
     validations: list[dict] = field(default_factory=list)
 
 
@@ -67,48 +69,100 @@ def route_curve(cfg: Config, file_name: str, explicit: str | None = None) -> str
     return matches[0] if matches else None
 
 
-def _duplicates(part: pd.DataFrame, name: str) -> tuple[np.ndarray, list[pd.DataFrame], pd.DataFrame | None]:
+def _group_starts(frame: pd.DataFrame, key: list[str]) -> np.ndarray:
+    """Group number of each row of ``frame``, already sorted by ``key``: a new group wherever a key changes."""
+    n = len(frame)
+    change = np.zeros(n, dtype=bool)
+    if n:
+        change[0] = True
+    for k in key:
+        col = frame[k].to_numpy()
+        if n > 1:
+            change[1:] |= col[1:] != col[:-1]
+    return np.cumsum(change) - 1
+
+
+def _duplicates(part: pd.DataFrame, name: str, units: str
+                ) -> tuple[np.ndarray, list[pd.DataFrame], pd.DataFrame | None]:
     """Rows to drop for repeating a (day, tenor) of the same file, their rejections, and findings.
 
     Identical repeats keep the first line; conflicting values keep none of them, since neither can
-    be trusted over the other.
+    be trusted over the other. A conflict's reason and finding name at most
+    :data:`~pipeline.wording.SHOWN` of the group's distinct values (as written, in the file's
+    ``units``) with the first line of each, then count the other lines: a group of a million lines
+    costs a reason no longer than a group of two, and the whole is linear in the rows.
     """
     key = ["file", "as_of", "tenor"]
     dup = part.duplicated(key, keep=False).to_numpy()
     drop = np.zeros(len(part), dtype=bool)
     if not dup.any():
         return drop, [], None
-    grp = part.groupby(key, sort=False)
-    spread = (grp["rate"].transform("max") - grp["rate"].transform("min")).to_numpy()
-    first_line = grp["line"].transform("min")
-    conflict = dup & (spread > 1e-12)
-    repeat = dup & ~conflict & (part["line"] != first_line).to_numpy()
+    # only the rows of duplicated keys from here on, each group's rows together and in line order
+    d = part.loc[dup].assign(_pos=np.flatnonzero(dup)).sort_values([*key, "line"], kind="stable")
+    gid = _group_starts(d, key)
+    starts = np.flatnonzero(np.r_[True, gid[1:] != gid[:-1]])
+    rate = d["rate"].to_numpy(dtype=float)
+    spread = np.maximum.reduceat(rate, starts) - np.minimum.reduceat(rate, starts)
+    conflict_g = spread > 1e-12
+    line = d["line"].to_numpy()
+    pos = d["_pos"].to_numpy()
+    first_row = np.zeros(len(d), dtype=bool)
+    first_row[starts] = True
+    conflict = conflict_g[gid]
+    repeat = ~conflict & ~first_row
     rejected = []
     finding = None
     if conflict.any():
-        bad = part.loc[conflict]
-        lines = bad.groupby(key)["line"].apply(lambda s: ", ".join(str(x) for x in sorted(s))).rename("lines")
-        values = bad.groupby(key)["rate"].apply(lambda s: ", ".join(f"{x:.6g}" for x in s)).rename("values")
-        joined = bad.join(lines, on=key).join(values, on=key)
-        rejected.append(_reject(joined, np.ones(len(joined), bool),
-                                "duplicate: conflicting values " + joined["values"].to_numpy(dtype=object)
-                                + " on lines " + joined["lines"].to_numpy(dtype=object), "duplicate"))
-        finding = pd.concat([lines, values], axis=1).reset_index()
-        finding["curve"] = name
-        finding["detail"] = "values " + finding["values"] + " on lines " + finding["lines"] + " of one file"
-        finding = finding[["file", "curve", "as_of", "tenor", "lines", "detail"]]
+        c = d.loc[conflict]
+        cg = _group_starts(c, key)
+        n_c = int(cg[-1]) + 1
+        c_starts = np.flatnonzero(np.r_[True, cg[1:] != cg[:-1]])
+        size = np.bincount(cg, minlength=n_c)
+        # each distinct value once, at its first line: the values that disagree are what a reader needs
+        distinct = ~pd.DataFrame({"g": cg, "v": c["value"].to_numpy(dtype=float)}).duplicated().to_numpy()
+        items = (number_text(c["value"].to_numpy()[distinct]) + " on line "
+                 + c["line"].to_numpy()[distinct].astype(str).astype(object))
+        listed, n_distinct = first_items(cg[distinct], items, n_c)
+        shown = np.minimum(n_distinct, SHOWN)
+        more = more_text(size, shown, "lines")
+        counted = np.array([f"{n:,}" for n in size.tolist()], dtype=object)
+        tenor_g = c["tenor"].to_numpy(dtype=object)[c_starts]
+        said = f"conflicting values ({units_name(units)})"
+        reason_g = ("duplicate: " + said + " for " + tenor_g + " on " + counted + " lines: " + listed + more
+                    + "; none is kept")
+        out = c[["file", "line", "raw"]].copy()
+        out["reason"] = _texts(out, reason_g[cg])
+        out["check_name"] = _texts(out, "duplicate")
+        rejected.append(out)
+        heads = c.iloc[c_starts]
+        finding = pd.DataFrame({
+            "file": heads["file"].to_numpy(), "curve": name, "as_of": heads["as_of"].to_numpy(),
+            "tenor": tenor_g, "rows": size,
+            "detail": said + " on " + counted + " lines of one file: " + listed + more,
+        })
     if repeat.any():
-        rejected.append(_reject(part, repeat, "duplicate: repeats line "
-                                + first_line.astype(str).to_numpy(dtype=object) + " with the same value",
-                                "duplicate"))
-    drop = conflict | repeat
+        # one reason per group, shared by its rows: a flood of repeats holds one string, not one per row
+        said = "duplicate: repeats line " + line[starts].astype(str).astype(object) + " with the same value"
+        out = d.loc[repeat, ["file", "line", "raw"]].copy()
+        out["reason"] = _texts(out, said[gid[repeat]])
+        out["check_name"] = _texts(out, "duplicate")
+        rejected.append(out)
+    drop[pos[conflict | repeat]] = True
     return drop, rejected, finding
+
+
+def _texts(frame: pd.DataFrame, values: object) -> pd.Series:
+    """A text column kept as Python objects: a string column would copy every reason into its own
+    buffer (the store's Arrow table does that once, at the end), where most of them are one shared string."""
+    if isinstance(values, str):
+        values = np.full(len(frame), values, dtype=object)
+    return pd.Series(values, index=frame.index, dtype=object)
 
 
 def _reject(frame: pd.DataFrame, mask: np.ndarray, reason: object, check: str) -> pd.DataFrame:
     out = frame.loc[mask, ["file", "line", "raw"]].copy()
-    out["reason"] = reason if isinstance(reason, str) else np.asarray(reason, dtype=object)[mask]
-    out["check_name"] = check
+    out["reason"] = _texts(out, reason if isinstance(reason, str) else np.asarray(reason, dtype=object)[mask])
+    out["check_name"] = _texts(out, check)
     return out
 
 
@@ -153,11 +207,12 @@ def prepare_many(results: Sequence[ReadResult], cfg: Config, curves: Sequence[st
             part = part.assign(rate=to_decimal(part["value"].to_numpy(), c.units))
             known = np.isin(part["tenor"].to_numpy(dtype=object), np.array(c.tenor_labels, dtype=object))
             if (~known).any():
-                rejected.append(_reject(part, ~known,
-                                        "unknown tenor: " + part["tenor"].astype(str).to_numpy(dtype=object)
-                                        + f" is not one of curves.{name}.tenors", "unknown_tenor"))
+                # one reason per distinct tenor, shared by its rows
+                codes, labels = pd.factorize(part["tenor"].astype(str).to_numpy(dtype=object))
+                said = "unknown tenor: " + np.asarray(labels, dtype=object) + f" is not one of curves.{name}.tenors"
+                rejected.append(_reject(part, ~known, said[codes], "unknown_tenor"))
                 part = part.loc[known]
-            drop, dup_rejected, finding = _duplicates(part, str(name))
+            drop, dup_rejected, finding = _duplicates(part, str(name), c.units)
             rejected.extend(dup_rejected)
             if finding is not None:
                 dup_findings.append(finding)
@@ -185,25 +240,41 @@ def prepare_many(results: Sequence[ReadResult], cfg: Config, curves: Sequence[st
 
     rows_by_file = split(accepted, ROW_COLUMNS)
     rej_by_file = split(rejected, REJECT_COLUMNS)
-    dup_by_file = split(dup_findings, ["curve", "as_of", "tenor", "lines", "detail"])
+    dup_by_file = split(dup_findings, ["curve", "as_of", "tenor", "rows", "detail"])
     return [Intake(rows_by_file[k], rej_by_file[k], dup_by_file[k]) for k in range(n_files)]
 
 
 def load_findings(intake: Intake, cfg: Config) -> pd.DataFrame:
     """Findings a load raises for one file: rows that broke a row-level expectation on a known day,
     and (day, tenor) pairs quoted twice with different values. Columns: curve, as_of, check_name,
-    severity, tenor, detail."""
+    severity, tenor, detail.
+
+    Rejected rows give one finding per (curve, day, check, tenor): its detail is ``line N: reason``
+    for a single row, else the count and the first :data:`~pipeline.wording.SHOWN` lines with their
+    reasons, then how many more (so a flood of bad rows on one day is one bounded finding)."""
     parts = []
     rj = intake.rejected
     if len(rj) and "as_of" in rj:
         named = rj.loc[rj["as_of"].notna() & rj["check_name"].isin(["out_of_range", "unparseable"])]
         if len(named):
+            key = ["curve", "as_of", "check_name", "tenor"]
+            g = named[[*key, "line", "reason"]].assign(tenor=named["tenor"].astype(object).where(
+                named["tenor"].notna(), ""))
+            g = g.sort_values([*key, "line"], kind="stable")
+            gid = _group_starts(g, key)
+            n_g = int(gid[-1]) + 1
+            heads = np.flatnonzero(np.r_[True, gid[1:] != gid[:-1]])
+            items = "line " + g["line"].astype(str).to_numpy(dtype=object) + ": " \
+                + g["reason"].astype(str).to_numpy(dtype=object)
+            listed, size = first_items(gid, items, n_g, sep="; ")
+            more = more_text(size, np.minimum(size, SHOWN), "lines")
+            counted = np.array([f"{n:,} lines: " if n > 1 else "" for n in size.tolist()], dtype=object)
+            tenor = g["tenor"].to_numpy(dtype=object)[heads]
             parts.append(pd.DataFrame({
-                "curve": named["curve"].to_numpy(dtype=object), "as_of": named["as_of"].to_numpy(),
-                "check_name": named["check_name"].to_numpy(dtype=object),
-                "tenor": named["tenor"].to_numpy(dtype=object),
-                "detail": ("line " + named["line"].astype(str) + ": "
-                           + named["reason"].astype(str)).to_numpy(dtype=object),
+                "curve": g["curve"].to_numpy(dtype=object)[heads], "as_of": g["as_of"].to_numpy()[heads],
+                "check_name": g["check_name"].to_numpy(dtype=object)[heads],
+                "tenor": np.where(tenor == "", None, tenor),
+                "detail": counted + listed + more,
             }))
     d = intake.duplicates
     if len(d):
@@ -213,8 +284,10 @@ def load_findings(intake: Intake, cfg: Config) -> pd.DataFrame:
     if not parts:
         return _empty(["curve", "as_of", "check_name", "severity", "tenor", "detail"])
     out = pd.concat(parts, ignore_index=True)
-    out["severity"] = [cfg.curves[str(c)].severity[str(k)]
-                       for c, k in zip(out["curve"], out["check_name"], strict=True)]
+    # one lookup per (curve, check) pair, not per finding
+    pairs = out[["curve", "check_name"]].astype(str).drop_duplicates()
+    sev = {(c, k): cfg.curves[c].severity[k] for c, k in zip(pairs["curve"], pairs["check_name"], strict=True)}
+    out["severity"] = [sev[(str(c), str(k))] for c, k in zip(out["curve"], out["check_name"], strict=True)]
     return out[["curve", "as_of", "check_name", "severity", "tenor", "detail"]]
 
 
@@ -222,7 +295,7 @@ def validate_intakes(intakes: Sequence[Intake], cfg: Config, validator: RowValid
     """Run the row-level expectations over the accepted rows of many files at once, in place.
 
     Rows of each curve from all the files are validated together (one suite run per curve); failing
-    rows move from each file's ``rows`` to its ``rejected`` with the expectation named in the reason.
+    rows move from each file's ``rows`` to its ``rejected`` with the validator's plain reason.
     Each file receives the summary of the run its rows took part in. Rows moved to ``rejected`` keep
     their ``curve``, ``as_of`` and ``tenor``, so a finding can name the day.
     """
@@ -236,7 +309,7 @@ def validate_intakes(intakes: Sequence[Intake], cfg: Config, validator: RowValid
     failed: dict[int, list[tuple[np.ndarray, np.ndarray, np.ndarray]]] = {}
     for name in pd.unique(allrows["curve"].to_numpy(dtype=object)):
         part = allrows.loc[allrows["curve"].to_numpy(dtype=object) == name]
-        ok, reasons, checks, summary = validator(part[["line", "as_of", "tenor", "rate", "raw"]],
+        ok, reasons, checks, summary = validator(part[["line", "as_of", "tenor", "rate", "value", "raw"]],
                                                  cfg.curves[str(name)])
         files = part["_file"].to_numpy()
         for k in np.unique(files):
@@ -257,8 +330,8 @@ def validate_intakes(intakes: Sequence[Intake], cfg: Config, validator: RowValid
         mask = np.zeros(len(it.rows), dtype=bool)
         mask[pos] = True
         moved = it.rows.iloc[pos][["line", "raw", "curve", "as_of", "tenor"]].copy()
-        moved["reason"] = np.concatenate([r for _, r, _ in parts])
-        moved["check_name"] = np.concatenate([c for _, _, c in parts])
+        moved["reason"] = _texts(moved, np.concatenate([r for _, r, _ in parts]))
+        moved["check_name"] = _texts(moved, np.concatenate([c for _, _, c in parts]))
         it.rejected = (pd.concat([it.rejected, moved], ignore_index=True)
                        .sort_values("line", kind="stable").reset_index(drop=True))
         it.rows = it.rows.loc[~mask].reset_index(drop=True)

@@ -3,7 +3,7 @@
 DuckDB allows one read-write process or many read-only processes, never both. So: writers keep their
 transactions short and close promptly; a connection that finds the file locked retries with backoff
 and then fails with :class:`StoreLocked`, whose message names the process holding the lock. A job of
-many short steps may instead hold the store for its whole run (:func:`held`, the backfill does).
+many short steps opens the store once and passes it down (the jobs do; :func:`writer_for`).
 """
 
 from __future__ import annotations
@@ -17,21 +17,11 @@ from pathlib import Path
 
 import duckdb
 
+from pipeline.errors import StoreError, StoreLocked, StoreMissing
 from warehouse.schema import apply_schema, schema_version
 
-__all__ = ["StoreError", "StoreLocked", "StoreMissing", "connect", "held", "one_thread", "reader", "writer"]
-
-
-class StoreError(RuntimeError):
-    """A problem with the store that the user can act on; the message is one line."""
-
-
-class StoreLocked(StoreError):
-    """Another process holds the store's write lock."""
-
-
-class StoreMissing(StoreError):
-    """No store at the configured path."""
+__all__ = ["StoreError", "StoreLocked", "StoreMissing", "connect", "one_thread", "reader", "transaction",
+           "writer", "writer_for"]
 
 
 _LOCK = re.compile(r"lock", re.IGNORECASE)
@@ -80,9 +70,6 @@ def connect(path: str | os.PathLike[str], *, read_only: bool = False, wait_secon
     connection's configuration so a query cannot undo it.
     """
     p = Path(path)
-    base = _held.get(p.resolve()) if external_access else None
-    if base is not None:
-        return base.cursor()  # the store this process holds open (see held)
     if not p.exists() and (read_only or not create):
         raise StoreMissing(f"no store at {p} (run 'afterward init' or 'afterward load' first)")
     if p.exists() and p.is_dir():
@@ -117,32 +104,6 @@ def connect(path: str | os.PathLike[str], *, read_only: bool = False, wait_secon
     return con
 
 
-_held: dict[Path, duckdb.DuckDBPyConnection] = {}
-
-
-@contextmanager
-def held(path: str | os.PathLike[str], **kwargs: object) -> Iterator[duckdb.DuckDBPyConnection]:
-    """Hold the store open, for writing, in this process for the length of the block.
-
-    Every :func:`connect` (so every :func:`writer` and :func:`reader`) of the same store inside the
-    block is then a cursor on the one open database, instead of opening the file again and, at
-    close, writing its log back into it: for a job of many short steps (a backfill) that saves
-    about 0.05-0.1 s a step. The price: no other process can open the store until the block ends.
-    Re-entrant; ``kwargs`` go to :func:`connect` for the first opening.
-    """
-    key = Path(path).resolve()
-    if key in _held:
-        yield _held[key]
-        return
-    con = connect(path, read_only=False, create=True, **kwargs)  # type: ignore[arg-type]
-    _held[key] = con
-    try:
-        yield con
-    finally:
-        del _held[key]
-        con.close()
-
-
 @contextmanager
 def writer(path: str | os.PathLike[str], **kwargs: object) -> Iterator[duckdb.DuckDBPyConnection]:
     """The one writer, closed on exit so the lock is held no longer than needed."""
@@ -154,6 +115,18 @@ def writer(path: str | os.PathLike[str], **kwargs: object) -> Iterator[duckdb.Du
 
 
 @contextmanager
+def writer_for(path: str | os.PathLike[str], con: duckdb.DuckDBPyConnection | None = None
+               ) -> Iterator[duckdb.DuckDBPyConnection]:
+    """``con`` when given (the store a command or flow run opened once and passes down; left open),
+    else a :func:`writer` of ``path`` for the block: a step called on its own opens its own store."""
+    if con is not None:
+        yield con
+        return
+    with writer(path) as opened:
+        yield opened
+
+
+@contextmanager
 def reader(path: str | os.PathLike[str], **kwargs: object) -> Iterator[duckdb.DuckDBPyConnection]:
     """A read-only connection, closed on exit."""
     con = connect(path, read_only=True, **kwargs)  # type: ignore[arg-type]
@@ -161,6 +134,21 @@ def reader(path: str | os.PathLike[str], **kwargs: object) -> Iterator[duckdb.Du
         yield con
     finally:
         con.close()
+
+
+@contextmanager
+def transaction(con: duckdb.DuckDBPyConnection) -> Iterator[duckdb.DuckDBPyConnection]:
+    """One transaction for the block: committed at its end, rolled back if it raises (even on Ctrl-C)."""
+    con.execute("BEGIN TRANSACTION")
+    try:
+        yield con
+    except BaseException:
+        try:
+            con.execute("ROLLBACK")
+        except duckdb.Error:
+            pass        # the failure that got us here is the one to report
+        raise
+    con.execute("COMMIT")
 
 
 @contextmanager

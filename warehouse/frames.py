@@ -13,7 +13,7 @@ import numpy as np
 import pandas as pd
 import pyarrow as pa
 
-__all__ = ["QuotePanel", "append_frame", "read_frame", "read_quote_panel"]
+__all__ = ["QuotePanel", "append_frame", "last_quoted_day", "read_frame", "read_quote_panel"]
 
 
 @dataclass
@@ -92,3 +92,9 @@ def append_frame(con: duckdb.DuckDBPyConnection, table: str, frame: pd.DataFrame
     staged = arrow.select(columns)  # noqa: F841 - read by DuckDB by its name
     con.execute(f"INSERT INTO {table} ({', '.join(columns)}) SELECT {', '.join(columns)} FROM staged")
     return arrow.num_rows
+
+
+def last_quoted_day(con: duckdb.DuckDBPyConnection, curve: str) -> object:
+    """The latest as-of date with a current quote of ``curve`` (None for an empty curve)."""
+    row = con.execute("SELECT max(as_of) FROM quotes WHERE curve = ?", [curve]).fetchall()
+    return row[0][0] if row else None

@@ -46,6 +46,14 @@ def _str(values: pd.Series) -> pa.Array:
     return pa.array(values.tolist(), type=pa.string())
 
 
+def _repeated_str(values: pd.Series) -> pa.Array:
+    """Text in which most values repeat (rejection reasons, the raw line of each of a wide line's cells),
+    dictionary-encoded: a flood of a million rejected rows holds each distinct text once."""
+    codes, uniques = pd.factorize(values.to_numpy(dtype=object), use_na_sentinel=True)
+    return pa.DictionaryArray.from_arrays(pa.array(codes, type=pa.int32(), mask=codes < 0),
+                                          pa.array(np.asarray(uniques, dtype=object), type=pa.string()))
+
+
 @dataclass
 class FileBatch:
     """One file, read and validated, in the store's layout: ready to record.
@@ -117,8 +125,9 @@ def file_batch(*, source_file: str, file_name: str, sha256: str, size_bytes: int
         first, last = rows["as_of"].min(), rows["as_of"].max()
     rj = None
     if error is None and rejected is not None and len(rejected):
-        rj = pa.table({"line": pa.array(rejected["line"].to_numpy(dtype=np.int32)), "raw": _str(rejected["raw"]),
-                       "reason": _str(rejected["reason"]), "check_name": _str(rejected["check_name"])})
+        rj = pa.table({"line": pa.array(rejected["line"].to_numpy(dtype=np.int32)),
+                       "raw": _repeated_str(rejected["raw"]), "reason": _repeated_str(rejected["reason"]),
+                       "check_name": _repeated_str(rejected["check_name"])})
     raised = None
     if error is None and findings is not None and len(findings):
         raised = pa.table({

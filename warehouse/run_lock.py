@@ -17,7 +17,7 @@ from collections.abc import Iterator
 from contextlib import contextmanager
 from pathlib import Path
 
-from warehouse.connect import StoreError
+from pipeline.errors import RunInProgress
 
 __all__ = ["RunInProgress", "run_lock", "run_lock_path"]
 
@@ -28,10 +28,6 @@ except ImportError:  # pragma: no cover - not on the supported platforms
 
 # re-entrant within one process: the command takes the lock before Prefect starts, the flow again inside
 _HELD: dict[str, tuple[int, int]] = {}
-
-
-class RunInProgress(StoreError):
-    """Another afterward job holds the store's run lock."""
 
 
 def run_lock_path(store_path: str | os.PathLike[str]) -> Path:

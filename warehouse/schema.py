@@ -1,4 +1,5 @@
-"""Schema files from ``sql/``, applied in order, each once, with the version recorded in the store.
+"""Schema files from ``sql/``: the migrations, applied in order, each once, with the version recorded in
+the store; then ``views.sql``, the current definition of every view, applied whenever it changed.
 
 The files ship inside the wheel as ``warehouse/sql``; in a source checkout they are read from the
 top-level ``sql/`` folder.
@@ -6,14 +7,18 @@ top-level ``sql/`` folder.
 
 from __future__ import annotations
 
+import hashlib
 import re
+from datetime import UTC, datetime
 from pathlib import Path
 
 import duckdb
 
 from warehouse.query import fetch_one
 
-__all__ = ["SCHEMA_FILES", "apply_schema", "schema_version", "sql_dir"]
+__all__ = ["SCHEMA_FILES", "VIEWS_FILE", "apply_schema", "schema_version", "sql_dir"]
+
+VIEWS_FILE = "views.sql"
 
 _NAME = re.compile(r"^(\d{3})_[a-z0-9_]+\.sql$")
 
@@ -66,4 +71,23 @@ def apply_schema(con: duckdb.DuckDBPyConnection) -> int:
             con.execute("ROLLBACK")
             raise
         current = max(current, version)
+    _apply_views(con)
     return current
+
+
+def _apply_views(con: duckdb.DuckDBPyConnection) -> None:
+    """Apply ``views.sql`` when the store holds another version of it (or none): one checksum per open."""
+    text = (sql_dir() / VIEWS_FILE).read_text(encoding="utf-8")
+    digest = hashlib.sha256(text.encode("utf-8")).hexdigest()
+    con.execute("CREATE TABLE IF NOT EXISTS schema_views (sha256 VARCHAR NOT NULL, applied_at TIMESTAMP NOT NULL)")
+    if fetch_one(con, "SELECT count(*) FROM schema_views WHERE sha256 = ?", [digest])[0]:  # type: ignore[index]
+        return
+    con.execute("BEGIN TRANSACTION")
+    try:
+        con.execute(text)
+        con.execute("DELETE FROM schema_views")
+        con.execute("INSERT INTO schema_views VALUES (?, ?)", [digest, datetime.now(UTC).replace(tzinfo=None)])
+        con.execute("COMMIT")
+    except BaseException:
+        con.execute("ROLLBACK")
+        raise

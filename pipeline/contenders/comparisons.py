@@ -37,7 +37,7 @@ import numpy as np
 from scipy import stats
 
 from pipeline.audit import MIN_OBS, TIE
-from pipeline.audit_stats import bartlett_long_run, hac_mean, hln_factor
+from pipeline.audit.hac import bartlett_long_run, hac_mean, hln_factor
 from pipeline.contenders.cells import Cell
 from pipeline.contenders.fixed_b import pvalue_one_sided, pvalue_two_sided
 from pipeline.dates import as_days

@@ -69,7 +69,7 @@ def bartlett_ratio(h: int) -> float:
 
 def nw_t_rows(x: np.ndarray, lags: int) -> np.ndarray:
     """Mean over its Newey-West (Bartlett, ``lags`` lags, no small-sample factor) standard error,
-    for every row of ``x`` (shape (reps, n)) at once: :func:`pipeline.audit_stats.hac_mean`'s
+    for every row of ``x`` (shape (reps, n)) at once: :func:`pipeline.audit.hac.hac_mean`'s
     figure, row-wise, by the same block-sum identity."""
     x = np.asarray(x, dtype=float)
     r, n = x.shape

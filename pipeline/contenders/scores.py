@@ -15,7 +15,7 @@ from __future__ import annotations
 import numpy as np
 
 from pipeline.audit import MIN_OBS, TIE
-from pipeline.audit_stats import hac_mean
+from pipeline.audit.hac import hac_mean
 from pipeline.contenders.cells import Cell
 from pipeline.contenders.fixed_b import pvalue_two_sided
 

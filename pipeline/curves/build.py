@@ -9,32 +9,25 @@ exception is the NSS fit, which visits days in date order (see :mod:`pipeline.cu
 from __future__ import annotations
 
 from collections.abc import Sequence
+from typing import TYPE_CHECKING
 
 import numpy as np
 
 from pipeline.bootstrap import bootstrap_par
 from pipeline.compounding import to_continuous
-from pipeline.config import INTERPOLATIONS, QUOTE_KINDS, CurveConfig, compounding_frequency
 from pipeline.curves.base import Block, CurveSet
-from pipeline.curves.cubic_zero import CubicZeroBlock
-from pipeline.curves.linear_zero import LinearZeroBlock
-from pipeline.curves.log_linear_discount import LogLinearDiscountBlock
-from pipeline.curves.monotone_convex import MonotoneConvexBlock
+from pipeline.curves.methods import BLOCKS, METHOD_NAMES, NSS_BOOTSTRAP_METHOD
 from pipeline.curves.nss import NSSBlock, fit_nss
 from pipeline.dates import as_days, maturity_dates, year_fraction
 from pipeline.tenors import Tenor, parse_tenor
 
-__all__ = ["BLOCKS", "build_curves", "curves_from_nodes", "node_zero_rates", "nss_curves"]
+if TYPE_CHECKING:  # the config imports the registered methods
+    from pipeline.config import CurveConfig
 
-BLOCKS: dict[str, type[Block]] = {
-    "linear_zero": LinearZeroBlock,
-    "log_linear_discount": LogLinearDiscountBlock,
-    "monotone_convex": MonotoneConvexBlock,
-    "cubic_zero": CubicZeroBlock,
-}
-# NSS is fitted to zero rates; when those come from par quotes they are bootstrapped with this method
-NSS_BOOTSTRAP_METHOD = "monotone_convex"
+__all__ = ["BLOCKS", "build_curves", "curves_from_nodes", "curves_from_stored", "node_zero_rates", "nss_curves"]
+
 MIN_QUOTES = 2
+QUOTE_KINDS = ("zero", "par", "discount", "simple")   # what a curve's numbers are (the config's ``quote``)
 
 
 def node_zero_rates(quotes: np.ndarray, times: np.ndarray, cfg: CurveConfig) -> np.ndarray:
@@ -73,11 +66,11 @@ def build_curves(
     as_of : ``(D,)`` dates (``datetime64[D]`` or anything :func:`pipeline.dates.as_days` takes).
     tenors : ``T`` tenors (:class:`~pipeline.tenors.Tenor` or labels), in any order.
     quotes : ``(D, T)`` decimals, NaN = missing, of kind ``cfg.quote``: ``zero`` rates in
-        ``cfg.compounding``; ``par`` yields with the coupon frequency of ``cfg.compounding`` (see
+        ``cfg.compounding``; ``par`` yields with ``cfg.coupons_per_year`` coupons a year (see
         :mod:`pipeline.bootstrap`); ``discount`` factors; ``simple`` money-market rates.
     cfg : the curve's conventions: ``day_count``, ``calendar``, ``compounding``, ``quote``, and
         ``interpolation`` unless ``method`` is given.
-    method : one of ``pipeline.config.INTERPOLATIONS``; overrides ``cfg.interpolation``.
+    method : one of ``pipeline.curves.methods.METHOD_NAMES``; overrides ``cfg.interpolation``.
     warm_start : NSS only: a ``(6,)`` parameter vector (the previous built day's) to start from.
 
     Maturities are ``maturity_dates(as_of, tenor, cfg.calendar)``; node times are
@@ -86,8 +79,8 @@ def build_curves(
     bootstrap does not converge or when an NSS fit fails. Inputs are never modified.
     """
     method = method or cfg.interpolation
-    if method not in INTERPOLATIONS:
-        raise ValueError(f"unknown interpolation {method!r}; allowed: {', '.join(INTERPOLATIONS)}")
+    if method not in METHOD_NAMES:
+        raise ValueError(f"unknown interpolation {method!r}; allowed: {', '.join(METHOD_NAMES)}")
     if cfg.quote not in QUOTE_KINDS:
         raise ValueError(f"unknown quote kind {cfg.quote!r}; allowed: {', '.join(QUOTE_KINDS)}")
     days = as_days(as_of).reshape(-1)
@@ -106,11 +99,11 @@ def build_curves(
 
     with np.errstate(invalid="ignore"):
         if cfg.quote == "par":
-            m = compounding_frequency(cfg.compounding)
+            m = cfg.coupons_per_year
             if not m:
                 raise ValueError(
                     f"curve {cfg.name!r}: par quotes need a coupon frequency; compounding = "
-                    f"{cfg.compounding!r} has none (use annual, semiannual, quarterly or monthly)"
+                    f"{cfg.compounding!r} has none (set coupon_frequency: annual, semiannual, quarterly or monthly)"
                 )
             direct = None
             usable = np.isfinite(q) & (times > 0.0) & (1.0 + q / m > 0.0)
@@ -207,3 +200,47 @@ def curves_from_nodes(
     ok = np.ones(days.shape[0], dtype=bool)
     return CurveSet(days, method, ok, [None] * days.shape[0], [(np.arange(days.shape[0]), block)],
                     day_count=day_count)
+
+
+def curves_from_stored(
+    as_of: object, methods: Sequence[str], times: np.ndarray, zero_cc: np.ndarray,
+    nss_params: np.ndarray | None = None, day_count: str = "ACT/365F",
+) -> CurveSet:
+    """One :class:`CurveSet` again from what the build stored: each day's method, its node times
+    ``(D, n)`` (year fractions on ``day_count``, increasing along each row) and continuous zero rates
+    ``(D, n)`` at the quoted tenors, and for ``nss`` days their parameters ``(D, 6)``.
+
+    Days are grouped by method (one block per method, no loop over days). A node-based day is its
+    interpolation through the stored nodes, the same curve the build made when every quote was
+    there (the build's nodes are the quoted tenors; a day that lacked a quote was built without that
+    node, and its stored value there lies on its curve, so the rebuilt curve differs from the
+    original only between nodes, and not at all for ``linear_zero``). Days with non-finite nodes or
+    (``nss``) parameters are not ok.
+    """
+    days = as_days(as_of).reshape(-1)
+    meth = np.asarray(list(methods), dtype=object).reshape(-1)
+    t = np.asarray(times, dtype=float).reshape(days.shape[0], -1)
+    z = np.asarray(zero_cc, dtype=float).reshape(t.shape)
+    p = None if nss_params is None else np.asarray(nss_params, dtype=float).reshape(days.shape[0], 6)
+    ok = np.zeros(days.shape[0], dtype=bool)
+    blocks: list[tuple[np.ndarray, Block]] = []
+    for m in sorted(set(meth.tolist())):  # one block per stored method (one in practice)
+        rows = np.flatnonzero(meth == m)
+        if m == "nss":
+            good = p is not None
+            if good:
+                rows = rows[np.all(np.isfinite(p[rows]), axis=1)]
+            if good and rows.size:
+                blocks.append((rows, NSSBlock(p[rows])))
+                ok[rows] = True
+            continue
+        if m not in BLOCKS:
+            raise ValueError(f"unknown stored method {m!r}; allowed: {', '.join(METHOD_NAMES)}")
+        rows = rows[np.all(np.isfinite(t[rows]) & np.isfinite(z[rows]), axis=1)
+                    & np.all(np.diff(t[rows], axis=1) > 0.0, axis=1)]
+        if rows.size:
+            blocks.append((rows, BLOCKS[m](t[rows], z[rows])))
+            ok[rows] = True
+    reason = [None if g else "no usable stored nodes" for g in ok]
+    label = str(meth[0]) if len(set(meth.tolist())) == 1 else "mixed"
+    return CurveSet(days, label, ok, reason, blocks, params=p, day_count=day_count)

@@ -84,6 +84,9 @@ def sector_coefficients(g0: np.ndarray, g1: np.ndarray) -> np.ndarray:
         e4 = np.clip(g1 / _safe(g1 + g0), 0.0, 1.0)
         a4 = -g0 * g1 / _safe(g0 + g1)
         eta = np.select([z2, z3, z4], [e2, e3, e4], 1.0)
+        # a piece narrower than 1e-12 of the interval is dropped: at a sector's boundary the pieces
+        # meet continuously, so this changes g on at most that sliver, and 1 / eta^2 cannot overflow
+        eta = np.where(eta < 1e-12, 0.0, np.where(eta > 1.0 - 1e-12, 1.0, eta))
         left_sq = np.where(eta > 0.0, 1.0 / _safe(eta * eta), 0.0)
         right_sq = np.where(eta < 1.0, 1.0 / _safe((1.0 - eta) ** 2), 0.0)
         e_l = np.where(z1 | z0, 0.0, eta)

@@ -12,10 +12,10 @@ import pytest
 from flows.audit_step import run_audit
 from flows.build_step import run_build
 from flows.check_step import run_checks
+from flows.load_step import load_files
 from flows.realize_step import run_realize
-from flows.steps import load_files
 from pipeline.config import load_config
-from pipeline.demo_market import demo_config_toml, write_demo_inbox
+from pipeline.demo import demo_config_toml, write_demo_inbox
 from tests.e2e.stores import DemoStore, build_flat_project
 
 

@@ -15,10 +15,10 @@ import pandas as pd
 from flows.audit_step import run_audit
 from flows.build_step import run_build
 from flows.check_step import run_checks
+from flows.load_step import load_files
 from flows.realize_step import run_realize
-from flows.steps import load_files
 from pipeline.config import Config, load_config
-from pipeline.demo_market import DemoManifest
+from pipeline.demo import DemoManifest
 from warehouse.connect import reader
 from warehouse.frames import read_frame
 from warehouse.loads import LoadOutcome

@@ -21,8 +21,8 @@ import pytest
 from flows.audit_step import read_outcomes, refresh_audit_incremental, run_audit
 from flows.build_step import run_build
 from flows.check_step import run_checks
+from flows.load_step import load_files
 from flows.realize_step import run_realize
-from flows.steps import load_files
 from pipeline.audit import SUMMARY_COLUMNS, summarize, term_premium
 from tests.e2e.stores import make_project, run_all_steps, write_wide_csv
 from warehouse.connect import reader

@@ -17,7 +17,7 @@ import QuantLib as ql
 
 from flows.build_step import run_build
 from flows.check_step import run_checks
-from flows.steps import load_files
+from flows.load_step import load_files
 from tests.e2e.stores import Project, clone_project, make_project, write_wide_csv
 from tests.quantlib_ref import ql_calendar, ql_date
 

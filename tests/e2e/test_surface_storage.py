@@ -13,13 +13,14 @@ import duckdb
 import numpy as np
 import pytest
 
-from flows.build_step import _shape_findings, run_build
+from flows.build_step import run_build
 from flows.check_step import accept_day, run_checks
-from flows.steps import load_files
+from flows.load_step import load_files
 from pipeline.checks import curve_shape_checks
 from pipeline.config import CurveConfig
 from pipeline.curves import build_curves
 from pipeline.dates import BusinessCalendar
+from pipeline.surfaces import _shape_findings
 from tests.e2e.stores import Project, clone_project, make_project, write_wide_csv
 from warehouse.connect import writer
 from warehouse.schema import SCHEMA_FILES
@@ -193,7 +194,7 @@ def test_a_day_released_from_a_hold_is_built_although_its_quotes_are_old(built, 
     assert (s.curves["zc"]["days_built"], s.curves["zc"]["held"]) == (1, 1)
     _write_month(p, "zc_mar.csv", _days("2032-03-01", "2032-03-01"), _rates(1, 10))
     assert run_build(p.cfg).curves["zc"]["days_built"] == 1  # built since: the held day's quotes are older
-    accept_day(p.cfg, "zc", "2032-02-03")
+    accept_day(p.cfg, "zc", "2032-02-03", "checked against the source")
     s = run_build(p.cfg)
     assert s.curves["zc"]["days_built"] == 1
     assert p.value("SELECT count(*) FROM forwards WHERE as_of = DATE '2032-02-03'") == 9

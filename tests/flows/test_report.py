@@ -40,11 +40,11 @@ from PIL import Image
 from flows.audit_step import run_audit
 from flows.build_step import run_build
 from flows.check_step import run_checks
+from flows.load_step import load_files
 from flows.realize_step import run_realize
 from flows.report_step import write_report
-from flows.steps import load_files
 from pipeline.config import load_config
-from pipeline.demo_market import demo_config_toml, generate_market, render_feed
+from pipeline.demo import demo_config_toml, generate_market, render_feed
 from pipeline.report import SECTIONS
 from tests.conftest import run_cli
 

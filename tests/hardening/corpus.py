@@ -445,10 +445,12 @@ class Corpus:
     def not_regular(self) -> None:
         fifo = self._name("named_pipe", ".csv")
         os.mkfifo(fifo)
-        self.files.append(BadFile(fifo, "not a regular file", expect_status="missing"))
+        # a pipe or a device is there but is no file: refused and logged with its reason (README,
+        # "Nothing lost"); a folder or a dangling link is no file at all and is only reported
+        self.files.append(BadFile(fifo, "not a regular file", expect_rows=0, expect_status="refused"))
         link = self._name("link_to_dev_zero", ".csv")
         os.symlink("/dev/zero", link)
-        self.files.append(BadFile(link, "not a regular file", expect_status="missing"))
+        self.files.append(BadFile(link, "not a regular file", expect_rows=0, expect_status="refused"))
         folder = self._name("a_directory", ".csv")
         folder.mkdir()
         self.files.append(BadFile(folder, "not a regular file", expect_status="missing"))
@@ -516,3 +518,106 @@ def _xlsx_claiming_whole_grid(data: bytes) -> bytes:
                 body = text.encode()
             zf.writestr(info.filename, body)
     return out.getvalue()
+
+
+# --- size classes: floods and outsized files, each loaded on its own with its memory measured ------
+
+@dataclass
+class Flood:
+    path: Path
+    category: str
+    rows: int | None            # rows read, counted from how the file was built (None: refused or not countable)
+    accepted: int | None
+    rejected: int | None
+    max_findings: int | None    # at most this many findings for the file (None: not bounded by construction)
+
+
+def _long_flood(path: Path, day: str, n: int, *, same: bool) -> None:
+    """``n`` lines of one (day, 3M); ``same``: every line the same value, else values that differ."""
+    with path.open("w", encoding="utf-8") as f:
+        f.write("date,tenor,rate\n")
+        if same:
+            f.writelines(f"{day},3M,4.1\n" for _ in range(n))
+        else:
+            f.writelines(f"{day},3M,4.{k % 9973:04d}\n" for k in range(n))
+
+
+def flood_corpus(folder: Path) -> list[Flood]:
+    """Files whose cost must stay linear in their size: the same key again and again (10^3..10^6 rows),
+    a wide one-day file of many lines, many distinct days, many columns, very long lines, one huge cell.
+
+    Each file has its own days, so the counts of one do not depend on another loaded before it. The
+    expected counts follow from how each file is built: a conflicting (day, tenor) group keeps none of
+    its rows, an identical one keeps its first (README, load section).
+    """
+    folder.mkdir(parents=True, exist_ok=True)
+    out: list[Flood] = []
+    day = np.datetime64("2032-01-05")
+
+    def next_day() -> str:
+        nonlocal day
+        day = day + 7
+        return str(day)
+
+    for n in (1_000, 10_000, 100_000):
+        p = folder / f"govt_same_key_conflict_{n}.csv"
+        _long_flood(p, next_day(), n, same=False)
+        out.append(Flood(p, f"same-key flood 10^{len(str(n)) - 1}", n, 0, n, 1))
+    # 10^6 rows of one key, written compactly: a typed long-layout Parquet file of a few MB
+    n = 1_000_000
+    p = folder / "govt_same_key_conflict_1000000.parquet"
+    pq.write_table(pa.table({"date": pa.array(np.full(n, np.datetime64(next_day(), "D")), pa.date32()),
+                             "tenor": pa.array(["3M"] * n),
+                             "rate": pa.array(4.0 + (np.arange(n) % 9973) / 1e4)}), p)
+    out.append(Flood(p, "same-key flood 10^6", n, 0, n, 1))
+    n = 100_000
+    p = folder / "govt_same_key_repeat_100000.csv"
+    _long_flood(p, next_day(), n, same=True)
+    out.append(Flood(p, "same-key flood 10^5 (identical)", n, 1, n - 1, 0))
+
+    # a wide one-day file: 3M differs on every line, 1Y, 2Y, 10Y never change, 5Y takes two values
+    n, d = 40_000, next_day()
+    p = folder / "govt_wide_one_day_40000.csv"
+    with p.open("w", encoding="utf-8") as f:
+        f.write("date,3M,1Y,2Y,5Y,10Y\n")
+        f.writelines(f"{d},4.{k % 9973:04d},4.2,4.3,{'4.5' if k % 2 else '4.51'},4.8\n" for k in range(n))
+    out.append(Flood(p, "wide one-day flood", 5 * n, 3, 5 * n - 3, 2))
+
+    # many distinct days (every calendar day from 1801), 3M out of the plausible band on each
+    n = 100_000
+    days = np.arange(np.datetime64("1801-01-01"), np.datetime64("1801-01-01") + n).astype(str)
+    p = folder / "govt_many_days_100000.csv"
+    with p.open("w", encoding="utf-8") as f:
+        f.write("date,3M,1Y,2Y,5Y,10Y\n")
+        f.writelines(f"{x},334,4.2,4.3,4.5,4.8\n" for x in days)
+    out.append(Flood(p, "many distinct days", 5 * n, 4 * n, n, n))
+
+    # many columns: 1,999 tenor columns none of which the curve knows, 250 days
+    labels = [f"{k}D" for k in range(1, 2400) if k % 7][:1_999]      # no two name the same tenor
+    n = 250
+    days = np.arange(np.datetime64("1700-01-01"), np.datetime64("1700-01-01") + n).astype(str)
+    p = folder / "govt_many_columns_1999.csv"
+    cells = ",".join(["4.1"] * len(labels))
+    with p.open("w", encoding="utf-8") as f:
+        f.write("date," + ",".join(labels) + "\n")
+        f.writelines(f"{x},{cells}\n" for x in days)
+    out.append(Flood(p, "many columns", n * len(labels), 0, n * len(labels), 0))
+
+    # very long lines: a 9,000-digit number (within the reader's field limit, not a finite float) per line
+    n = 2_000
+    days = np.arange(np.datetime64("1650-01-01"), np.datetime64("1650-01-01") + n).astype(str)
+    p = folder / "govt_long_lines_2000.csv"
+    big = "9" * 9_000
+    with p.open("w", encoding="utf-8") as f:
+        f.write("date,3M,1Y\n")
+        f.writelines(f"{x},4.1,{big}\n" for x in days)
+    out.append(Flood(p, "very long lines", 2 * n, n, n, 0))
+
+    # one huge cell: 30 MB of digits on one line (refused or rejected, never a crash)
+    p = folder / "govt_huge_cell.csv"
+    with p.open("w", encoding="utf-8") as f:
+        f.write("date,3M\n2031-01-02,4.1\n2031-01-03,")
+        f.write("4" * 30_000_000)
+        f.write("\n")
+    out.append(Flood(p, "huge single cell", None, None, None, None))
+    return out

@@ -197,6 +197,45 @@ def run_bounded(*args: str, cwd: Path, timeout: float, env: dict[str, str] | Non
     return CliRun(code, out, err, time.monotonic() - t0)
 
 
+@dataclass
+class MeasuredRun(CliRun):
+    peak_rss: int = 0           # bytes: the child's own peak resident set (its wait4 rusage), 0 if unknown
+
+
+def run_measured(*args: str, cwd: Path, timeout: float, env: dict[str, str] | None = None) -> MeasuredRun:
+    """:func:`run_bounded`, and the peak resident memory of that one process.
+
+    The child is reaped with ``os.wait4``, whose rusage is the child's own (``RUSAGE_CHILDREN`` would be
+    the largest of every child this test process ever had). Output goes to files, so nothing blocks
+    on a full pipe while the child is polled.
+    """
+    import tempfile
+
+    t0 = time.monotonic()
+    with tempfile.TemporaryFile("w+", encoding="utf-8", errors="replace") as out, \
+            tempfile.TemporaryFile("w+", encoding="utf-8", errors="replace") as err:
+        proc = subprocess.Popen(cli_command(*args), cwd=cwd, env=cli_env(env), stdout=out, stderr=err,
+                                preexec_fn=_limit_memory)
+        code: int | None = None
+        peak = 0
+        while True:
+            pid, status, usage = os.wait4(proc.pid, os.WNOHANG)
+            if pid:
+                code = os.waitstatus_to_exitcode(status)
+                peak = usage.ru_maxrss * 1024        # kilobytes on Linux
+                break
+            if time.monotonic() - t0 > timeout:
+                proc.kill()
+                _pid, _status, usage = os.wait4(proc.pid, 0)
+                peak = usage.ru_maxrss * 1024
+                break
+            time.sleep(0.02)
+        proc.returncode = code if code is not None else -9     # reaped here: Popen must not wait again
+        out.seek(0)
+        err.seek(0)
+        return MeasuredRun(code, out.read(), err.read(), time.monotonic() - t0, peak)
+
+
 def spawn(*args: str, cwd: Path, env: dict[str, str] | None = None) -> subprocess.Popen[str]:
     """``afterward ARGS`` started in the background (stdout line-buffered for the kill harness)."""
     return subprocess.Popen(cli_command(*args), cwd=cwd, env=cli_env(env), stdout=subprocess.PIPE,

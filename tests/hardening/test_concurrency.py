@@ -17,7 +17,7 @@ from pathlib import Path
 
 import pytest
 
-from flows.steps import load_files
+from flows.load_step import load_files
 from pipeline.config import load_config
 from tests.hardening.harness import (
     CONFIG,
@@ -194,7 +194,9 @@ def test_a_second_run_stops_at_once_naming_the_first(tmp_path):
             assert seconds < 6, seconds
         # the inbox is untouched and nothing was loaded
         assert (inbox / "govt_2031-01.csv").exists()
-        assert not cfg.store_path.exists() or open_store(cfg.store_path).execute("SELECT count(*) FROM load_log").fetchone() == (0,)
+        if cfg.store_path.exists():
+            with open_store(cfg.store_path) as con:
+                assert con.execute("SELECT count(*) FROM load_log").fetchone() == (0,)
     finally:
         first.kill()
         first.wait()

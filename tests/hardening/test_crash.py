@@ -23,7 +23,7 @@ import numpy as np
 import pytest
 
 from flows.build_step import run_build
-from flows.steps import load_files
+from flows.load_step import load_files
 from pipeline.config import load_config
 from tests.hardening.harness import (
     BUILD_VIEWS,

@@ -4,7 +4,13 @@ unless ``--allow-files``, and CSV cells that a spreadsheet would run as formulas
 numbers (negative ones too) pass untouched.
 
 Most cases call the command line's own entry point in this process (``flows.cli.main``: the same
-parsing, guard, connection and output as the installed command); two run it as a subprocess."""
+parsing, guard, connection and output as the installed command); two run it as a subprocess.
+
+DuckDB resolves a relative path in ``COPY ... TO 'leak.csv'`` or ``EXPORT DATABASE`` against the
+working directory of the process that runs the statement (not the store's folder), and writes
+through a temporary ``tmp_<name>`` file beside the target when it overwrites. So the in-process
+cases run in an empty working directory of their own and require it to stay empty, whatever the
+names; the subprocess case runs in the project and requires the project's files to be unchanged."""
 
 from __future__ import annotations
 
@@ -15,7 +21,7 @@ from pathlib import Path
 import pytest
 
 from flows.cli import main
-from flows.steps import load_files
+from flows.load_step import load_files
 from pipeline.config import load_config
 from tests.hardening.harness import CONFIG, run_bounded
 
@@ -36,6 +42,19 @@ def project(tmp_path_factory) -> Path:
     (outside / "secret.csv").write_text("a,b\n1,2\n", encoding="utf-8")
     (root / "secret.txt").write_text("top secret\n", encoding="utf-8")
     return proj
+
+
+@pytest.fixture
+def cwd(tmp_path, monkeypatch) -> Path:  # noqa: ANN001
+    """An empty working directory for the in-process command: where a relative COPY target would land."""
+    folder = tmp_path / "cwd"
+    folder.mkdir()
+    monkeypatch.chdir(folder)
+    return folder
+
+
+def _files(folder: Path) -> set[str]:
+    return {str(p.relative_to(folder)) for p in folder.rglob("*") if not p.name.endswith(".wal")}
 
 
 def _sql(project: Path, capsys, *args: str) -> tuple[int, str, str]:  # noqa: ANN001
@@ -78,12 +97,14 @@ def _one_line(err: str) -> str:
     pytest.param("EXPLAIN (FORMAT json) COPY quote_version TO 'leak.csv'", "EXPLAIN COPY", id="explain-options-copy"),
 ])
 @pytest.mark.parametrize("allow_files", [False, True], ids=["plain", "allow-files"])
-def test_statements_other_than_queries_are_refused(project, capsys, query, kind, allow_files):
+def test_statements_other_than_queries_are_refused(project, capsys, cwd, query, kind, allow_files):
+    before = _files(project.parent)
     args = [query, "--allow-files"] if allow_files else [query]
     code, out, err = _sql(project, capsys, *args)
     assert code == 2, out + err
     assert f"refused: {kind} statements are not allowed" in _one_line(err)
-    assert not list(project.glob("leak*")), "a refused statement wrote a file"
+    assert list(cwd.iterdir()) == [], "a refused statement wrote a file"
+    assert _files(project.parent) == before
 
 
 @pytest.mark.parametrize("query", [
@@ -104,14 +125,14 @@ def test_statements_other_than_queries_are_refused(project, capsys, query, kind,
     pytest.param("SELECT * FROM read_csv('https://example.invalid/x.csv')", id="url"),
     pytest.param("SELECT * FROM query('COPY quote_version TO ''leak.csv''')", id="query-function-copy"),
 ])
-def test_files_outside_the_store_folders_are_refused(project, capsys, query):
+def test_files_outside_the_store_folders_are_refused(project, capsys, cwd, query):
     q = query.format(root=project.parent, proj=project)
     code, out, err = _sql(project, capsys, q)
     assert code == 2, out
     line = _one_line(err)
     assert line.startswith("afterward: SQL error:"), line
     assert "secret" not in out and "top secret" not in out
-    assert not list(project.glob("leak*"))
+    assert list(cwd.iterdir()) == []
 
 
 @pytest.mark.parametrize("query", [
@@ -128,14 +149,36 @@ def test_queries_and_files_inside_are_allowed(project, capsys, query):
     code, out, err = _sql(project, capsys, query.format(proj=project), "--format", "csv")
     assert code == 0, err
     assert err == ""
+    rows = _csv_rows(out)
+    assert len(rows) >= 2 and rows[0], out   # a header and at least one row came back
+    if rows[0] == ["n"]:
+        # the counts as an independent reader sees them: the csv module on the inbox file, a plain
+        # listing of the store's folder, DuckDB opened read-only on the store
+        if "read_csv" in query:
+            want = len(list(csv.reader(io.StringIO((project / "inbox" / "govt_2031-01.csv").read_text())))) - 1
+        elif "glob" in query:
+            want = sum(1 for p in project.iterdir() if p.is_file())
+        else:
+            import duckdb
+
+            con = duckdb.connect(str(project / "store.duckdb"), read_only=True)
+            try:
+                want = con.execute("SELECT count(*) FROM quotes").fetchone()[0]  # type: ignore[index]
+            finally:
+                con.close()
+        assert int(rows[1][0]) == want, (query, out)
 
 
 def test_allow_files_reads_outside_but_still_writes_nothing(project, capsys):
     secret = project.parent / "proj-outside" / "secret.csv"
     code, out, err = _sql(project, capsys, f"SELECT * FROM read_csv('{secret}')", "--format", "csv", "--allow-files")
     assert code == 0 and out.splitlines() == ["a,b", "1,2"], err
-    code, out, err = _sql(project, capsys, "SELECT * FROM read_text('/etc/hostname')", "--allow-files")
-    assert code == 0
+    hostname = Path("/etc/hostname")
+    code, out, err = _sql(project, capsys, f"SELECT content FROM read_text('{hostname}')", "--format", "csv",
+                          "--allow-files")
+    assert code == 0, err
+    # the file's text as Python reads it (the first line: a host name is one line)
+    assert hostname.read_text().strip() in out
 
 
 def _csv_rows(text: str) -> list[list[str]]:
@@ -182,9 +225,11 @@ def test_table_output_prints_markup_as_text(project, capsys):
 
 def test_the_installed_command_refuses_the_same(project):
     """The real entry point in a fresh process: exit 2, one line, no traceback, nothing written."""
+    before = _files(project)
     run = run_bounded("sql", "EXPLAIN ANALYZE COPY quote_version TO 'leak.csv'", cwd=project, timeout=60)
     assert run.returncode == 2 and not run.traceback
     assert "refused: EXPLAIN COPY" in _one_line(run.stderr)
     run = run_bounded("sql", f"SELECT * FROM read_text('{project.parent / 'secret.txt'}')", cwd=project, timeout=60)
     assert run.returncode == 2 and "Permission Error" in _one_line(run.stderr)
-    assert not list(project.glob("leak*"))
+    # the process ran in the project: a relative COPY target (or its tmp_ file) would be there
+    assert _files(project) == before

@@ -1,7 +1,8 @@
 """Property-based tests of the readers (hypothesis): whatever bytes come in, ``read_rate_file`` returns
-(never raises), and what it returns keeps the promise rows read = accepted + rejected, with one-line
-reasons, finite values and real dates. For grids of simple cells the number of rows read equals the
-count made from the cells by ``corpus.count_rows`` (the readers' documented rule, counted apart)."""
+(never raises), with one-line reasons, finite values, real dates and every row traced to a data line
+of the file. The number of rows is counted apart from the reader, from the text it was given: for
+grids of simple cells by ``corpus.count_rows`` (the README's rule: one row per non-empty tenor cell,
+one for a line that cannot be split into quotes), for one-quote lines one per line."""
 
 from __future__ import annotations
 
@@ -25,9 +26,10 @@ PREFIXES = st.sampled_from([b"", b"PK\x03\x04", b"PAR1", b"\xef\xbb\xbf", b"\xff
                             b"date,tenor,rate\n", b"\x00"])
 
 
-def _check(result, limits: ReadLimits | None = None) -> None:  # noqa: ANN001
+def _check(result, limits: ReadLimits | None = None, text: str | None = None, end: str = "\n") -> None:  # noqa: ANN001
+    """``text``: the file's text when the test made one; every row must then come from one of its
+    data lines (line 1 is the header), so no row is invented from nothing."""
     TALLY.property_examples += 1
-    assert result.rows_read == len(result.rows) + len(result.rejected)
     if result.error is not None:
         assert isinstance(result.error, str) and result.error.strip()
         assert "\n" not in result.error and "\r" not in result.error
@@ -41,6 +43,9 @@ def _check(result, limits: ReadLimits | None = None) -> None:  # noqa: ANN001
     assert (result.rows["line"] >= 2).all() and (result.rejected["line"] >= 2).all()
     if limits is not None:
         assert len(set(result.rows["line"]) | set(result.rejected["line"])) <= limits.max_lines
+    if text is not None:
+        n_lines = len(text.split(end)) - (1 if text.endswith(end) else 0)
+        assert (result.rows["line"] <= n_lines).all() and (result.rejected["line"] <= n_lines).all()
 
 
 @SETTINGS
@@ -62,7 +67,7 @@ _CELLS = ["4.1", "-0.5", "0", "1e308", "1e309", "NaN", "inf", "", " ", "2031-01-
        sep=st.sampled_from([",", ";", "\t", "|"]), end=st.sampled_from(["\n", "\r\n", "\r"]), name=NAMES)
 def test_grids_of_hostile_cells(header, rows, sep, end, name):
     text = end.join([sep.join(header), *(sep.join(r) for r in rows)]) + end
-    _check(read_rate_file(text.encode("utf-8"), name))
+    _check(read_rate_file(text.encode("utf-8"), name), text=text, end=end)
 
 
 _DAYS = ["2031-01-02", "2031-1-3", "2031/01/06", "20310107", "2031-02-30", "2031-13-01", "x", "", "0000-01-01"]
@@ -81,8 +86,10 @@ def test_rows_read_match_the_cells(days, data, n_tenors):
         rows.append([d, *data.draw(st.lists(st.sampled_from(_RATES), min_size=width - 1, max_size=width - 1))])
     text = "\n".join([",".join(header), *(",".join(r) for r in rows)]) + "\n"
     result = read_rate_file(text.encode(), "g.csv")
-    _check(result)
-    assert result.rows_read == count_rows(header, rows)
+    _check(result, text=text)
+    want = count_rows(header, rows)
+    assert len(result.rows) + len(result.rejected) == want
+    assert result.rows_read == want
 
 
 @SETTINGS
@@ -102,8 +109,11 @@ def test_line_limit(n, limit):
     limits = ReadLimits(max_lines=limit)
     text = "date,3M\n" + "".join(f"2031-01-{1 + k % 28:02d},4.{k}\n" for k in range(n))
     result = read_rate_file(text.encode(), "f.csv", limits=limits)
-    _check(result, limits)
+    _check(result, limits, text=text)
     assert (result.error is not None) == (n > limit)
+    if n <= limit:
+        # each data line holds one quote (counted from the text: n lines after the header)
+        assert len(result.rows) + len(result.rejected) == result.rows_read == n
 
 
 @SETTINGS
@@ -136,7 +146,7 @@ _GOOD = _good_bytes()
 
 # --- the column-wise Parquet path against the cell-by-cell one ------------------------------------
 #
-# A long-layout Parquet file with typed columns is read column-wise (pipeline.readers._typed_long);
+# A long-layout Parquet file with typed columns is read column-wise (pipeline.readers.layouts.read_typed_long);
 # any other goes cell by cell through text. The reference here is that text path run on the same
 # table: both must give the same rows, values, lines and raw text, whatever the table holds.
 
@@ -156,7 +166,8 @@ def test_typed_parquet_reads_as_the_text_path_does(n, data, date_type, rate_type
 
     import pandas as pd
 
-    from pipeline.readers import _long, _table_grid, _typed_long
+    from pipeline.readers.decode import table_grid
+    from pipeline.readers.layouts import read_long, read_typed_long
 
     days = data.draw(st.lists(st.one_of(st.none(), st.integers(-30_000, 40_000)), min_size=n, max_size=n))
     if not data.draw(st.booleans()):
@@ -191,7 +202,7 @@ def test_typed_parquet_reads_as_the_text_path_does(n, data, date_type, rate_type
     pq.write_table(table, buf)
     got = read_rate_file(buf.getvalue(), "f.parquet")
     table = pq.read_table(io.BytesIO(buf.getvalue()))
-    want = _long(_table_grid(table), "iso")
+    want = read_long(table_grid(table), "iso")
     TALLY.property_examples += 1
     assert got.error == want.error and got.layout == want.layout and got.columns == want.columns
     pd.testing.assert_frame_equal(got.rows, want.rows, check_dtype=True, check_exact=True)
@@ -201,7 +212,7 @@ def test_typed_parquet_reads_as_the_text_path_does(n, data, date_type, rate_type
              and set(tenors) <= set(_TENOR_TEXT[:7]) and all(r is None or math.isfinite(r) for r in rates)
              and all(-354285 <= d <= 2932896 for d in days))
     if clean:
-        assert _typed_long(table) is not None
+        assert read_typed_long(table) is not None
 
 
 _SAMPLE_CHARS = st.sampled_from([",", ";", "\t", "|", "\n", "\n", " ", "a", "3M", "4.1", "2031-01-02", '"', "'", "",
@@ -212,7 +223,7 @@ _SAMPLE_CHARS = st.sampled_from([",", ";", "\t", "|", "\n", "\n", " ", "a", "3M"
 @given(parts=st.lists(_SAMPLE_CHARS, max_size=60), repeat=st.integers(1, 6))
 def test_plain_delimiter_agrees_with_the_sniffer(parts, repeat):
     # csv.Sniffer (the standard library) is the reference; the shortcut may decline, never disagree
-    from pipeline.readers import _plain_delimiter, _sniffed_delimiter
+    from pipeline.readers.decode import _plain_delimiter, _sniffed_delimiter
 
     line = "".join(parts)
     for sample in (line, "\n".join([line] * repeat)):
@@ -223,7 +234,7 @@ def test_plain_delimiter_agrees_with_the_sniffer(parts, repeat):
 
 
 def test_plain_delimiter_takes_the_usual_files():
-    from pipeline.readers import _plain_delimiter
+    from pipeline.readers.decode import _plain_delimiter
 
     assert _plain_delimiter("date,3M,1Y\n2031-01-02,4.1,4.2\n2031-01-03,4.1,4.3") == ","
     assert _plain_delimiter("date;3M\n2031-01-02;4,1") is None      # a decimal comma: the sniffer decides

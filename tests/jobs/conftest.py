@@ -35,7 +35,7 @@ def prefect_server():
 @pytest.fixture(scope="session")
 def demo_files(tmp_path_factory):  # noqa: ANN001, ANN201
     """The demo market's delivered files (30 years, two curves), written once for the session."""
-    from pipeline.demo_market import write_demo_inbox
+    from pipeline.demo import write_demo_inbox
 
     return write_demo_inbox(tmp_path_factory.mktemp("demo-inbox"))
 
@@ -44,7 +44,7 @@ def demo_files(tmp_path_factory):  # noqa: ANN001, ANN201
 def make_project(demo_files, tmp_path):  # noqa: ANN001, ANN201
     """``make_project(name, years)``: a demo project under ``tmp_path/name`` whose inbox holds the demo
     files of ``years`` (the store not yet created); returns its :class:`Config`."""
-    from pipeline.demo_market import demo_config_toml
+    from pipeline.demo import demo_config_toml
 
     def make(name: str, years: tuple[int, ...]) -> Config:
         root = tmp_path / name

@@ -10,11 +10,12 @@ import pytest
 from rich.console import Console
 
 from flows.audit_step import run_audit
-from flows.backfill import backfill, compute_chunk, plan_chunks, task_runner_for
+from flows.backfill import backfill, task_runner_for
 from flows.build_step import run_build
 from flows.check_step import run_checks
+from flows.chunks import compute_chunk, plan_chunks
+from flows.load_step import load_files
 from flows.realize_step import run_realize
-from flows.steps import load_files
 from pipeline.config import load_config
 from warehouse.connect import reader
 
@@ -45,7 +46,7 @@ def rows(cfg, view: str, cols: str) -> pd.DataFrame:  # noqa: ANN001
 @pytest.fixture(scope="module")
 def loaded_store(demo_files, tmp_path_factory):  # noqa: ANN001, ANN201
     """Three demo years loaded (no build yet): the config path of a template project."""
-    from pipeline.demo_market import demo_config_toml
+    from pipeline.demo import demo_config_toml
 
     root = tmp_path_factory.mktemp("backfill-template")
     (root / "afterward.toml").write_text(demo_config_toml(), encoding="utf-8")
@@ -62,7 +63,7 @@ def copy_project(template, tmp_path, name: str):  # noqa: ANN001, ANN201
 
 
 def test_a_two_worker_dask_backfill_writes_exactly_the_single_process_rows(loaded_store, tmp_path):
-    from flows.jobs import cli_backfill
+    from flows.prefect_commands import cli_backfill
 
     dask_cfg = copy_project(loaded_store, tmp_path, "dask")
     single_cfg = copy_project(loaded_store, tmp_path, "single")
@@ -124,7 +125,7 @@ def test_a_chunk_is_pure_computation_on_what_the_plan_read(loaded_store, tmp_pat
 def test_chunks_start_costliest_first(loaded_store, tmp_path):
     # longest-processing-time order (common scheduling practice, no source): the par curve's
     # bootstrap makes its chunks dearer than the zero curve's chunks of as many days
-    from flows.backfill import costliest_first, job_cost
+    from flows.chunks import costliest_first, job_cost
 
     cfg = copy_project(loaded_store, tmp_path, "order")
     jobs = plan_chunks(cfg, None, None, 97)
@@ -140,7 +141,7 @@ def test_the_writer_hands_back_each_curve_once_and_never_stores_a_chunk_twice(lo
     from prefect import flow
     from prefect.utilities.annotations import quote
 
-    from flows.backfill import ChunkArrivals, costliest_first, submit_chunks, write_chunks
+    from flows.chunks import ChunkArrivals, costliest_first, submit_chunks, write_chunks
 
     cfg = copy_project(loaded_store, tmp_path, "writer")
 
@@ -183,13 +184,44 @@ def test_a_day_the_checks_hold_back_is_not_stored_though_its_chunk_was_computed_
     flow_cfg, plain_cfg = configs
     done = backfill.with_options(task_runner=task_runner_for(1))(config_path=str(flow_cfg.path))
     run_checks(plain_cfg)
-    run_build(plain_cfg)
+    plain = run_build(plain_cfg)
     with reader(flow_cfg.store_path) as con:
         held = {str(d) for (d,) in con.execute("SELECT as_of FROM held_days WHERE curve = 'govt'").fetchall()}
         built = {str(d) for (d,) in con.execute("SELECT DISTINCT as_of FROM zero_rates WHERE curve = 'govt'"
                                                    ).fetchall()}
     assert "2012-06-14" in held and not held & built
+    # the backfill counts the days held back as the build step does
+    assert done.curves["govt"]["held"] == plain.curves["govt"]["held"] == len(held)
     assert done.caught_up == 0 and not done.curves["govt"].get("withdrawn")  # nothing stored to withdraw
     for view, cols in (("zero_rates", ZERO_COLS), ("forwards", FWD_COLS), ("finding", FINDING_COLS)):
         pd.testing.assert_frame_equal(rows(flow_cfg, view, cols), rows(plain_cfg, view, cols), check_exact=True,
                                       obj=view)
+
+
+def test_the_backfill_command_says_how_many_days_reject_findings_held_back(loaded_store, tmp_path):
+    """``afterward backfill`` prints, per curve, the days held back by reject findings, as ``build`` does."""
+    from flows.prefect_commands import cli_backfill
+
+    cfg = copy_project(loaded_store, tmp_path, "held")
+    # a restated govt day with its 5Y quote 300 bp off: a jump, which the checks reject
+    with reader(cfg.store_path) as con:
+        day = con.sql("SELECT tenor, rate FROM quotes WHERE curve = 'govt' AND as_of = '2012-06-14'"
+                      ).to_arrow_table().to_pandas()
+    rates = dict(zip(day["tenor"], day["rate"], strict=True))
+    rates["5Y"] += 0.03
+    fix = tmp_path / "govt_2012-06-14-jump.csv"
+    fix.write_text("date," + ",".join(rates) + "\n2012-06-14," + ",".join(f"{100 * r:.4f}" for r in rates.values())
+                   + "\n")
+    assert {o.status for o in load_files(cfg, [fix])} == {"loaded"}
+    console = Console(record=True, width=200)
+    assert cli_backfill(cfg.path, None, None, 1, None, console) == 0, console.export_text()
+    text = console.export_text()
+    with reader(cfg.store_path) as con:
+        held = dict(con.execute("SELECT curve, count(*) FROM held_days GROUP BY curve").fetchall())
+    assert held.get("govt")
+    for name in cfg.curves:
+        line = next(x for x in text.splitlines() if x.startswith(f"{name}: built"))
+        if held.get(name):
+            assert f", {held[name]:,} held back by reject findings" in line, line
+        else:
+            assert "held back" not in line, line

@@ -20,7 +20,7 @@ import pytest
 from rich.console import Console
 
 from flows.daily import COMPLETED, COMPLETED_WITH_FINDINGS, daily, file_away, is_retryable, stable_files
-from flows.steps import load_files
+from flows.load_step import load_files
 from warehouse.connect import StoreLocked, reader
 from warehouse.loads import LoadOutcome
 
@@ -67,6 +67,9 @@ def test_daily_loads_the_inbox_refuses_garbage_and_a_second_run_is_a_no_op(make_
     delivered = sorted(p for p in cfg.inbox.iterdir())
     garbage = cfg.inbox / "govt_2013-01.csv"
     garbage.write_bytes(bytes(range(256)) * 4)  # routed to govt by its name, but not a text file at all
+    # a named pipe with no writer: opening it to read would block the run for ever
+    pipe = cfg.inbox / "govt_2013-02.csv"
+    os.mkfifo(pipe)
     expected_rows = quotes_in_files(delivered)
 
     summary = daily(config_path=str(cfg.path), settle_seconds=0.05)
@@ -74,7 +77,7 @@ def test_daily_loads_the_inbox_refuses_garbage_and_a_second_run_is_a_no_op(make_
     # a refused file does not stop the run; it ends "completed with findings"
     assert summary.status == COMPLETED_WITH_FINDINGS
     assert summary.files_loaded == len(delivered) == 48
-    assert summary.files_refused == 1
+    assert summary.files_refused == 2
     # every quote in the files is in the store (plain recount of the files)
     [(n_quotes,)] = store_value(cfg, "SELECT count(*) FROM quotes")
     [(n_rejected,)] = store_value(cfg, "SELECT count(*) FROM rejected_rows WHERE line > 0")
@@ -86,10 +89,16 @@ def test_daily_loads_the_inbox_refuses_garbage_and_a_second_run_is_a_no_op(make_
     [(line, reason)] = store_value(cfg, "SELECT line, reason FROM rejected_rows WHERE source_file LIKE "
                                         "'%govt_2013-01.csv'")
     assert line == 0 and reason
-    # files moved: the inbox is empty, the loaded ones in loaded/, the garbage in refused/
-    assert [p for p in cfg.inbox.iterdir() if p.is_file()] == []
+    # the pipe is recorded as refused too, with its reason (README: a file that cannot be read at
+    # all is logged as refused), and nothing was read from it
+    [(status, rows_read, detail)] = store_value(cfg, "SELECT l.status, l.rows_read, r.reason FROM loads l "
+                                                     "JOIN rejected_rows r USING (load_id) "
+                                                     "WHERE l.source_file LIKE '%govt_2013-02.csv'")
+    assert (status, rows_read) == ("refused", 0) and "not a regular file" in detail
+    # files moved: the inbox is empty, the loaded ones in loaded/, the garbage and the pipe in refused/
+    assert [p for p in cfg.inbox.iterdir() if not p.is_dir()] == []
     assert sorted(p.name for p in cfg.loaded.iterdir()) == [p.name for p in delivered]
-    assert [p.name for p in cfg.refused.iterdir()] == [garbage.name]
+    assert sorted(p.name for p in cfg.refused.iterdir()) == [garbage.name, pipe.name]
     # built, realised: every day not held back has a zero curve and the full forward surface
     per_day = {name: len(c.forward_starts) * len(c.forward_tenors) for name, c in cfg.curves.items()}
     for name, n_fwd in per_day.items():
@@ -234,7 +243,7 @@ def test_filing_away_keeps_an_earlier_file_of_the_same_name(make_project):
 
 
 def test_afterward_run_prints_the_outcome_and_the_timings_and_exits_1_on_findings(make_project):
-    from flows.jobs import cli_run
+    from flows.prefect_commands import cli_run
 
     cfg = make_project("cli", ())
     (cfg.inbox / "swap_2012-01.parquet").write_bytes(b"PAR1 not really parquet")
@@ -252,7 +261,7 @@ def test_serve_options_use_the_config_schedule_and_cancel_new_runs(make_project)
     from prefect.client.schemas.objects import ConcurrencyLimitStrategy
     from prefect.runner import Runner
 
-    from flows.jobs import serve_options
+    from flows.prefect_commands import serve_options
     from pipeline.config import ConfigError
 
     cfg = make_project("serve", ())
@@ -277,7 +286,7 @@ def test_serve_options_use_the_config_schedule_and_cancel_new_runs(make_project)
 
 
 def test_the_default_schedule_is_weekdays_at_half_past_six(make_project):
-    from flows.jobs import serve_options
+    from flows.prefect_commands import serve_options
 
     cfg = make_project("default-schedule", ())
     assert serve_options(cfg.path)["schedule"].cron == "30 18 * * 1-5"
@@ -286,7 +295,7 @@ def test_the_default_schedule_is_weekdays_at_half_past_six(make_project):
 def test_serve_without_a_prefect_server_explains_how_to_start_one(make_project):
     from prefect.settings import PREFECT_API_URL, temporary_settings
 
-    from flows.jobs import cli_serve
+    from flows.prefect_commands import cli_serve
 
     cfg = make_project("serve-no-server", ())
     console = Console(record=True, width=200)

@@ -1,12 +1,12 @@
 """Forecast-audit statistics against outside references.
 
 Sources named beside each check:
-- statsmodels 0.15 (reference implementation, REFERENCES item 20): ``OLS(...).fit(cov_type="HAC",
+- statsmodels 0.15 (reference implementation, tests/REFERENCES.md #20): ``OLS(...).fit(cov_type="HAC",
   cov_kwds={"maxlags": L})`` for Newey-West, ``wald_test(..., use_f=False)``,
   ``stats.sandwich_covariance.S_hac_simple`` and ``tsa.stattools.diebold_mariano_test``;
-- REFERENCES item 19: Diebold & Mariano (1995) with the Harvey, Leybourne & Newbold (1997)
+- tests/REFERENCES.md #19: Diebold & Mariano (1995) with the Harvey, Leybourne & Newbold (1997)
   correction, published check value from the README of the PyPI package ``dieboldmariano``;
-- REFERENCES item 21: Fama & Bliss (1987), estimators checked on synthetic data with known slope;
+- tests/REFERENCES.md #21: Fama & Bliss (1987), estimators checked on synthetic data with known slope;
 - plain pandas recomputations (rolling means, moments, hit rate).
 """
 
@@ -29,7 +29,7 @@ from pipeline.audit import (
     term_premium,
     verdict,
 )
-from pipeline.audit_stats import bartlett_long_run, diebold_mariano, hac_mean, rolling_mean_hac_se
+from pipeline.audit.hac import bartlett_long_run, diebold_mariano, hac_mean, rolling_mean_hac_se
 from pipeline.dates import BusinessCalendar, as_days
 
 CAL = BusinessCalendar.of()
@@ -154,7 +154,7 @@ def test_summary_matches_statsmodels(n, h):
 
 
 def test_fama_bliss_recovers_known_slope():
-    """REFERENCES item 21: test the estimator where the true slope is known (0.6 by construction)."""
+    """tests/REFERENCES.md #21: test the estimator where the true slope is known (0.6 by construction)."""
     rng = np.random.default_rng(11)
     n, h = 4000, 5
     spread = rng.normal(0, 0.002, n)
@@ -173,7 +173,7 @@ def test_fama_bliss_recovers_known_slope():
 
 
 def test_dm_published_value():
-    """REFERENCES item 19 (dieboldmariano README; Diebold & Mariano 1995 with HLN 1997):
+    """tests/REFERENCES.md #19 (dieboldmariano README; Diebold & Mariano 1995 with HLN 1997):
     actuals 10..50, forecasts A and B, h = 1, squared error: DM = -2.2229922805746782, one-sided
     p = 0.04515565862099125 (our p-value is two-sided: twice that)."""
     actual = np.array([10.0, 20, 30, 40, 50])
@@ -303,7 +303,7 @@ def test_term_premium_needs_a_full_window():
 def test_hac_band_covers_known_premium():
     """Errors = known premium + MA(h-1) noise: the HAC 95 % interval covers the premium about as
     often as Bartlett weights with h-1 lags allow, and far more often than ignoring the overlap
-    (Newey-West 1987, REFERENCES item 20: h-1 lags for overlapping h-step errors).
+    (Newey-West 1987, tests/REFERENCES.md #20: h-1 lags for overlapping h-step errors).
 
     For equal-weight MA(h-1) noise the true long-run variance is h^2 s^2, while Bartlett with h-1
     lags converges to h s^2 (1 + (h-1)(2h-1)/(3h)), about 2/3 of it: the nominal 95 % interval
@@ -389,10 +389,10 @@ def test_as_days_round_trip_of_outputs():
     assert as_days(s["first_as_of"].to_numpy())[0] == as_days(o["as_of"].to_numpy())[0]
 
 
-# ---------------------------------------------------------------- incremental state (pipeline.audit_state)
+# ---------------------------------------------------------------- incremental state (pipeline.audit.state)
 # Reference: summarize / term_premium / overlap_horizon over the whole record (themselves checked
 # against statsmodels above), and statsmodels directly where named.
-from pipeline.audit_state import (  # noqa: E402
+from pipeline.audit.state import (  # noqa: E402
     BAND,
     LAG_BAND,
     TAIL_COLUMNS,

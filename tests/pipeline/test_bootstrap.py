@@ -1,6 +1,6 @@
 """Par-yield bootstrap: published worked examples, and every input par bond repricing to par.
 
-References: REFERENCES items 6-10 (Hull; CFA curriculum via Bodie, Kane & Marcus), and QuantLib's
+References: tests/REFERENCES.md #6-#10 (Hull; CFA curriculum via Bodie, Kane & Marcus), and QuantLib's
 ``Schedule`` (backward generation from the unadjusted maturity, ``ModifiedFollowing``) as the
 independent source of coupon dates in the repricing check.
 """
@@ -47,7 +47,7 @@ NODE_METHODS = [m for m in INTERPOLATIONS if m != "nss"]
 
 @pytest.mark.parametrize("method", NODE_METHODS, ids=NODE_METHODS)
 def test_cfa_annual_par_curve(method):
-    # source: REFERENCES item 9, CFA example in Bodie, Kane & Marcus (seen): annual par yields ->
+    # source: tests/REFERENCES.md #9, CFA example in Bodie, Kane & Marcus (seen): annual par yields ->
     # spot rates 5.00, 5.21, 6.05, 7.16 % and one-year forwards 5.00, 5.42, 7.75, 10.56 %
     cfg = _cfg("annual")
     days = np.array(["2031-01-15"], dtype="datetime64[D]")
@@ -65,7 +65,7 @@ def test_cfa_annual_par_curve(method):
 @pytest.mark.parametrize("method", [m for m in INTERPOLATIONS if m != "nss"],
                          ids=[m for m in INTERPOLATIONS if m != "nss"])
 def test_cfa_bond_equivalent_bootstrap(method):
-    # source: REFERENCES item 10 (CFA, seen): semiannual par 3 %, 4 %, 5 % -> spots 3.00, 4.01, 5.03 %
+    # source: tests/REFERENCES.md #10 (CFA, seen): semiannual par 3 %, 4 %, 5 % -> spots 3.00, 4.01, 5.03 %
     # (bond-equivalent = semiannual compounding; exact 18-month value 5.034)
     cfg = _cfg("semiannual")
     days = np.array(["2031-01-15"], dtype="datetime64[D]")
@@ -77,7 +77,7 @@ def test_cfa_bond_equivalent_bootstrap(method):
 
 
 def test_hull_bootstrap_from_bond_prices():
-    # source: REFERENCES item 6 (Hull, 5th-edition slides, figure 5.1; seen). The three bills are
+    # source: tests/REFERENCES.md #6 (Hull, 5th-edition slides, figure 5.1; seen). The three bills are
     # discount quotes; the two coupon bonds pay on those dates, so each solves for one discount factor.
     cfg = _cfg("continuous", quote="discount")
     days = np.array(["2031-01-15"], dtype="datetime64[D]")
@@ -91,9 +91,9 @@ def test_hull_bootstrap_from_bond_prices():
 
 
 @pytest.mark.parametrize(("zeros", "price", "par", "annuity"), [
-    # REFERENCES item 7 (Hull table 4.2, seen; par yield 6.87 from memory, recomputed 6.873)
+    # tests/REFERENCES.md #7 (Hull table 4.2, seen; par yield 6.87 from memory, recomputed 6.873)
     ([0.050, 0.058, 0.064, 0.068], 98.39, 6.873, None),
-    # REFERENCES item 8 (Hull, seen): d = 0.8694, A = 3.6935, par 7.0741 % (semiannual)
+    # tests/REFERENCES.md #8 (Hull, seen): d = 0.8694, A = 3.6935, par 7.0741 % (semiannual)
     ([0.050, 0.060, 0.065, 0.070], None, 7.0741, 3.6935),
 ], ids=["hull-4.2", "hull-par-yield"])
 def test_hull_par_yield_and_bond_price_from_zeros(zeros, price, par, annuity):
@@ -206,3 +206,65 @@ def test_par_needs_a_coupon_frequency():
     with pytest.raises(ValueError, match="coupon frequency"):
         build_curves(np.array(["2031-01-15"], dtype="datetime64[D]"), ["1Y", "2Y"], np.array([[0.03, 0.04]]),
                      _cfg("continuous"), method="linear_zero")
+
+
+ANNUAL_AS_OF = ["2031-12-31", "2032-08-30", "2033-03-15"]
+ANNUAL_TENORS = ["6M", "1Y", "18M", "2Y", "3Y", "5Y", "7Y", "10Y"]
+ANNUAL_QUOTES = np.array([
+    [0.0340, 0.0355, 0.0368, 0.0377, 0.0391, 0.0410, 0.0425, 0.0440],
+    [0.0502, 0.0478, 0.0460, 0.0451, 0.0432, 0.0415, 0.0409, 0.0405],
+    [0.0015, 0.0024, 0.0031, 0.0040, 0.0062, 0.0098, 0.0125, 0.0150],
+])
+
+
+def _annual_cfg(coupon_frequency="annual"):
+    return CurveConfig(name="b", quote="par", compounding="continuous", day_count="30/360", calendar=CAL,
+                       coupon_frequency=coupon_frequency)
+
+
+@pytest.mark.parametrize("method", NODE_METHODS, ids=NODE_METHODS)
+def test_annual_coupons_on_a_continuously_compounded_curve_reprice_to_par(method):
+    # the coupon schedule follows coupon_frequency (annual: c paid once a year) while the zero rates
+    # are shown continuously compounded; repricing rule of the curve tests: every input bond to 1e-9
+    cfg = _annual_cfg()
+    assert all(CAL.is_business_day(np.array(ANNUAL_AS_OF, dtype="datetime64[D]")))
+    c = build_curves(np.array(ANNUAL_AS_OF, dtype="datetime64[D]"), ANNUAL_TENORS, ANNUAL_QUOTES, cfg, method=method)
+    assert c.ok.all(), c.reason
+    prices = _independent_prices(c, ANNUAL_AS_OF, ANNUAL_TENORS, ANNUAL_QUOTES, 1, "30/360")
+    assert np.max(np.abs(prices - 1.0)) < 1e-9, np.max(np.abs(prices - 1.0))
+    z = zero_rate_table(c, ANNUAL_TENORS, cfg)
+    np.testing.assert_array_equal(z["zero_rate"].to_numpy(), z["zero_rate_cc"].to_numpy())   # continuous
+    # the same par yields read as semiannual coupons give another curve: the frequency is used
+    semi = build_curves(np.array(ANNUAL_AS_OF, dtype="datetime64[D]"), ANNUAL_TENORS, ANNUAL_QUOTES,
+                        _annual_cfg("semiannual"), method=method)
+    other = zero_rate_table(semi, ANNUAL_TENORS, cfg)["zero_rate"].to_numpy()
+    assert np.max(np.abs(other - z["zero_rate"].to_numpy())) > 1e-5
+
+
+def test_annual_coupon_bonds_agree_with_quantlib_fixed_rate_bonds():
+    # source: QuantLib FixedRateBond (annual Schedule, backward from the unadjusted maturity, accrual on
+    # unadjusted dates, paid modified following; Thirty360 BondBasis) priced by DiscountingBondEngine on
+    # a DiscountCurve holding our curve's discount factors at the payment dates: each prices to 100.
+    # Tenors of two years and more (one coupon period or less is our single-payment rule, not a bond's).
+    cfg = _annual_cfg()
+    days = np.array(ANNUAL_AS_OF, dtype="datetime64[D]")
+    c = build_curves(days, ANNUAL_TENORS, ANNUAL_QUOTES, cfg, method="monotone_convex")
+    dc = ql.Thirty360(ql.Thirty360.BondBasis)
+    worst = 0.0
+    for i, day in enumerate(ANNUAL_AS_OF):
+        ql.Settings.instance().evaluationDate = _ql(day)
+        for j, label in enumerate(ANNUAL_TENORS):
+            t = parse_tenor(label)
+            if t.months < 24:
+                continue
+            end = add_months(np.datetime64(day), t.months)
+            sched = ql.Schedule(_ql(day), _ql(end), ql.Period(ql.Annual), QL_CAL, ql.Unadjusted, ql.Unadjusted,
+                                ql.DateGeneration.Backward, False)
+            bond = ql.FixedRateBond(0, 100.0, sched, [float(ANNUAL_QUOTES[i, j])], dc, ql.ModifiedFollowing)
+            pay = sorted({cf.date() for cf in bond.cashflows()})
+            taus = year_fraction(np.datetime64(day), np.array([np.datetime64(p.ISO()) for p in pay]), "30/360")
+            dfs = c.discount(np.broadcast_to(taus, (len(days), len(taus))))[i]
+            curve = ql.DiscountCurve([_ql(day), *pay], [1.0, *map(float, dfs)], dc, QL_CAL)
+            bond.setPricingEngine(ql.DiscountingBondEngine(ql.YieldTermStructureHandle(curve)))
+            worst = max(worst, abs(bond.NPV() / 100.0 - 1.0))
+    assert worst < 1e-9, worst

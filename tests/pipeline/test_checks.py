@@ -336,6 +336,76 @@ def test_discount_factor_curve_judges_moves_in_implied_rates():
     assert "implied zero rate" in serious["detail"].iloc[0]
 
 
+def pandas_jump_rule(days, r, jump_bp, outlier_mads):
+    """Independent computation of the jump rule of ``checks.jumps``' docstring, in plain pandas, for a
+    history with every quote present: the day-on-day move (``diff``), the move against the neighbouring
+    tenors (one on each side; at an end of the curve the nearest two on the one side), combined as the
+    smaller excess when both agree in sign and 0 when they disagree, scored in raw MADs (floored at
+    1 bp) from its median over the history; flagged when beyond ``jump_bp`` or ``outlier_mads``.
+    Returns ``{(day, tenor): severity}``, ``info`` for the move back from an outlier (the next move,
+    flagged too, opposite in sign, going back at least half-way; in a chain every second one)."""
+    frame = pd.DataFrame(r, index=pd.DatetimeIndex(days), columns=LABELS)
+    move = frame.diff()
+    n = len(LABELS)
+    rel = pd.DataFrame(index=frame.index, columns=LABELS, dtype=float)
+    for j, col in enumerate(LABELS):
+        if j == 0:
+            sides = (LABELS[1], LABELS[2])
+        elif j == n - 1:
+            sides = (LABELS[n - 2], LABELS[n - 3])
+        else:
+            sides = (LABELS[j - 1], LABELS[j + 1])
+        a = move[col] - move[sides[0]]
+        b = move[col] - move[sides[1]]
+        smaller = a.where(a.abs() <= b.abs(), b)
+        rel[col] = smaller.where(np.sign(a) == np.sign(b), 0.0).where(move[col].notna())
+    med = rel.median()
+    mad = (rel - med).abs().median().clip(lower=1e-4)
+    outlier = (rel - med).abs().div(mad) > outlier_mads
+    flagged = (move.abs() * 1e4 > jump_bp) | outlier
+    back_cand = (flagged & flagged.shift(1, fill_value=False)
+                 & (np.sign(move) == -np.sign(move.shift(1)))
+                 & ((frame - (frame.shift(1) - move.shift(1))).abs() <= 0.5 * move.shift(1).abs()))
+    out = {}
+    for col in LABELS:
+        c = back_cand[col]
+        run = c.astype(int).groupby((~c).cumsum()).cumsum()
+        for day in flagged.index[flagged[col]]:
+            out[(np.datetime64(day, "D"), col)] = "info" if run[day] % 2 == 1 else DEFAULT_SEVERITY["jump"]
+    return out
+
+
+@pytest.mark.parametrize(("jump_bp", "outlier_mads"), [(75.0, 8.0), (1e9, 8.0), (30.0, 5.0), (1e9, 3.0)],
+                         ids=["defaults", "outliers-only", "tighter", "many-outliers"])
+def test_jump_and_outlier_flags_equal_a_plain_pandas_recomputation(jump_bp, outlier_mads):
+    days, r = random_walk_history(1500, seed=5)
+    # fat-tailed (Student t, 3 dof) quote noise of about 2 bp a tenor: the MAD of the relative moves
+    # is then above its 1-bp floor and the thresholds cut through the bulk of the moves, so the
+    # comparison sees many borderline days, not only the planted ones
+    noise = np.random.default_rng(21).standard_t(3, size=r.shape) * 2e-4
+    bad = np.round(r + noise, 6)
+    bad[700, LABELS.index("5Y")] *= 10                 # units slip, interior tenor
+    bad[300, LABELS.index("1M")] /= 100                # units slip at the short end
+    bad[1100, LABELS.index("30Y")] *= 10               # at the long end
+    bad[400, LABELS.index("7Y")] += 0.0040             # a 40 bp spike on one tenor
+    bad[500, LABELS.index("3Y")] *= 10                 # bad, back, bad again, back
+    bad[502, LABELS.index("3Y")] *= 10
+    bad[900:] += 0.0100                                # a real parallel shift that stays
+    bad[[901, 1201], LABELS.index("2Y")] += 0.0300      # two spikes far apart: their moves back are info
+    cfg = make_cfg(jump_bp=jump_bp, outlier_mads=outlier_mads)
+    out = checks.jumps(days, LABELS, bad, cfg)
+    got = {(np.datetime64(a, "D"), t): sev for a, t, sev in zip(out["as_of"], out["tenor"], out["severity"],
+                                                                strict=True)}
+    want = pandas_jump_rule(days, bad, jump_bp, outlier_mads)
+    assert len(got) == len(out)  # one finding per (day, tenor)
+    assert got == want
+    assert len(got) >= 20
+    # the planted days are among them, so the comparison is not of two empty sets
+    for k, tenor in ((700, "5Y"), (300, "1M"), (1100, "30Y"), (500, "3Y"), (502, "3Y"), (901, "2Y")):
+        assert got[(days[k], tenor)] == DEFAULT_SEVERITY["jump"]
+    assert got[(days[701], "5Y")] == "info" and got[(days[902], "2Y")] == "info"
+
+
 # --- incremental ----------------------------------------------------------------------------------
 
 def test_incremental_run_with_previous_matches_the_full_run_on_its_range():
@@ -398,17 +468,24 @@ def test_inversion_episodes_agree_with_plain_pandas(seed):
 
 
 def test_inversion_detail_gives_spread_in_bp_and_missing_day_does_not_break_an_episode():
-    days = days_of("2031-05-05", "2031-05-06", "2031-05-08", "2031-05-09", "2031-05-12")  # 7 May missing
-    r = np.full((5, 12), 0.04)
+    # Mon 5 May .. Tue 13 May 2031; Wed 7 May, a business day, has no curve at all, and on 8 May the
+    # 10Y is not quoted (the pair is not judged): neither breaks the run of 5, 6 and 9 May; the judged,
+    # not inverted 12 May does
+    days = days_of("2031-05-05", "2031-05-06", "2031-05-08", "2031-05-09", "2031-05-12", "2031-05-13")
+    assert np.is_busday(d("2031-05-07")) and d("2031-05-07") not in days
+    r = np.full((6, 12), 0.04)
     j3m, j10 = LABELS.index("3M"), LABELS.index("10Y")
-    r[:, j3m] = [0.0450, 0.0460, 0.0455, 0.0380, 0.0470]
-    r[:, j10] = [0.0420, 0.0400, 0.0410, 0.0400, 0.0420]
+    r[:, j3m] = [0.0450, 0.0460, 0.0455, 0.0440, 0.0380, 0.0470]
+    r[:, j10] = [0.0420, 0.0400, 0.0410, 0.0410, 0.0400, 0.0420]
     r[2, j10] = np.nan  # 8 May not judged
     cfg = make_cfg(inversion_pairs=((parse_tenor("3M"), parse_tenor("10Y")),))
     ep = checks.inversion_episodes(days, LABELS, r, cfg)
     assert ep[["first_day", "last_day", "days"]].astype(str).values.tolist() == [
-        ["2031-05-05", "2031-05-06", "2"], ["2031-05-12", "2031-05-12", "1"]]
+        ["2031-05-05", "2031-05-09", "3"], ["2031-05-13", "2031-05-13", "1"]]
     assert ep["deepest_bp"].tolist() == pytest.approx([-60.0, -50.0])
+    # the plain-pandas runs of this module agree
+    ref = pandas_episodes(days, r, "3M", "10Y")
+    assert ref[["days"]].values.ravel().tolist() == [3, 1]
     found = checks.inversions(days, LABELS, r, cfg)
     assert found["detail"].iloc[1] == "10Y 0.04 below 3M 0.046: spread -60.0 bp"
 
@@ -472,10 +549,22 @@ def test_severity_is_taken_from_config_per_check():
     days, r = random_walk_history(100)
     r = r.copy()
     r[50, 2] *= 10
+    # an inversion of 3M/10Y on days 70-72 (the 3M quote put 50 bp above the 10Y one), so the
+    # inversion override has findings to act on
+    r[70:73, LABELS.index("3M")] = r[70:73, LABELS.index("10Y")] + 0.0050
     sev = dict(DEFAULT_SEVERITY, jump="warn", inversion="reject")
     out = checks.curve_checks(days, LABELS, r, make_cfg(severity=sev))
     by = out.groupby("check_name")["severity"].agg(set)
     assert by["jump"] <= {"warn", "info"} and "warn" in by["jump"]
+    inv = out[out["check_name"] == "inversion"]
+    assert {(np.datetime64(a, "D"), t) for a, t in zip(inv["as_of"], inv["tenor"], strict=True)
+            if t == "3M/10Y"} >= {(days[k], "3M/10Y") for k in (70, 71, 72)}
+    assert set(inv["severity"]) == {"reject"}
+    # the same history with the default severities: the inversions are reported at the default
+    plain = checks.curve_checks(days, LABELS, r, make_cfg())
+    assert DEFAULT_SEVERITY["inversion"] != "reject"
+    assert set(plain[plain["check_name"] == "inversion"]["severity"]) == {DEFAULT_SEVERITY["inversion"]}
+    assert len(plain[plain["check_name"] == "inversion"]) == len(inv)
 
 
 def test_pairs_inverted_on_their_first_judged_day():

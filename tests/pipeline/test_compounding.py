@@ -1,4 +1,4 @@
-"""Compounding conversions: Hull's worked conversions (REFERENCES item 5) and round trips."""
+"""Compounding conversions: Hull's worked conversions (tests/REFERENCES.md #5) and round trips."""
 
 from __future__ import annotations
 
@@ -12,7 +12,7 @@ from hypothesis import strategies as st
 from pipeline.compounding import discount_from_rate, from_continuous, rate_from_discount, to_continuous
 from pipeline.config import COMPOUNDINGS
 
-# REFERENCES item 5 (Hull, compounding conversions; seen): (rate, from, to, published, decimals of the
+# tests/REFERENCES.md #5 (Hull, compounding conversions; seen): (rate, from, to, published, decimals of the
 # published value in percent)
 HULL = [
     (0.06, "annual", "continuous", 5.83, 2),
@@ -30,13 +30,13 @@ def test_hull_conversions(rate, src, dst, published, places):
 
 
 def test_hull_semiannual_to_quarterly():
-    # source: REFERENCES item 5 (Hull): 12 % semiannual = 11.83 % quarterly
+    # source: tests/REFERENCES.md #5 (Hull): 12 % semiannual = 11.83 % quarterly
     actual = float(from_continuous(to_continuous(0.12, "semiannual", 1.0), "quarterly", 1.0)) * 100
     assert round(actual, 2) == 11.83, f"expected 11.83, actual {actual}"
 
 
 def test_closed_forms():
-    # source: REFERENCES item 5 closed forms: 2 ln 1.05 and 4 (e^0.02 - 1)
+    # source: tests/REFERENCES.md #5 closed forms: 2 ln 1.05 and 4 (e^0.02 - 1)
     assert abs(float(to_continuous(0.10, "semiannual", 3.0)) - 2 * math.log(1.05)) < 1e-15
     assert abs(float(from_continuous(0.08, "quarterly", 0.1)) - 4 * math.expm1(0.02)) < 1e-15
 

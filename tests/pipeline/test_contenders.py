@@ -20,7 +20,7 @@ import statsmodels.api as sm
 from statsmodels.stats.sandwich_covariance import S_hac_simple
 from statsmodels.tsa.stattools import diebold_mariano_test
 
-from pipeline.audit_stats import hac_mean
+from pipeline.audit.hac import hac_mean
 from pipeline.contenders import builtin_contenders, compare, is_user_name, trailing_premium
 from pipeline.contenders.cells import aligned_cells
 from pipeline.contenders.comparisons import clark_west, diebold_mariano_hln, giacomini_white, known_lag_index

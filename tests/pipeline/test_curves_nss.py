@@ -1,6 +1,6 @@
 """Nelson-Siegel-Svensson: the Federal Reserve's published rows, and the per-day fit.
 
-Reference: Gürkaynak, Sack & Wright (2007) and the Federal Reserve staff data file (REFERENCES item 15,
+Reference: Gürkaynak, Sack & Wright (2007) and the Federal Reserve staff data file (tests/REFERENCES.md #15,
 seen): zero yields (continuous), instantaneous forwards and par yields (coupon-equivalent) from the
 published parameters, to the published 4 decimals (percent).
 """
@@ -14,7 +14,7 @@ from pipeline.config import CurveConfig
 from pipeline.curves import build_curves, nss_curves
 from pipeline.dates import BusinessCalendar, maturity_dates, year_fraction
 
-# REFERENCES item 15: b0, b1, b2, b3, tau1, tau2 (percent; taus in years)
+# tests/REFERENCES.md #15: b0, b1, b2, b3, tau1, tau2 (percent; taus in years)
 GSW = {
     "1961-06-14": {
         "params": [3.91760612208239, -1.2779552459795, -1.94939709504669, 0.0, 0.339217585301823, 1.0],
@@ -56,7 +56,7 @@ def test_published_zero_yields_and_forwards(day):
 
 @pytest.mark.parametrize("day", sorted(GSW), ids=sorted(GSW))
 def test_published_par_yields(day):
-    # source: REFERENCES item 15 formula: par = 200 (1 - D(n)) / sum_{k=1}^{2n} D(k/2)
+    # source: tests/REFERENCES.md #15 formula: par = 200 (1 - D(n)) / sum_{k=1}^{2n} D(k/2)
     c, row = _curve(day), GSW[day]
     for n, expected in zip(row["par_n"], row["par"], strict=True):
         half = np.arange(1, 2 * n + 1)[None, :] / 2.0

@@ -25,7 +25,7 @@ import pytest
 import QuantLib as ql
 import statsmodels.api as sm
 
-from pipeline import demo_market as dm
+from pipeline import demo as dm
 from pipeline.config import load_config, parse_config
 from pipeline.dates import BusinessCalendar, maturity_dates
 from tests.quantlib_ref import ql_calendar
@@ -337,7 +337,7 @@ def test_swap_quotes_are_annual_act360_of_the_swap_zero_curve(market: dm.DemoMar
 # --- par yields -----------------------------------------------------------------------------------
 
 # Hull, "Options, Futures, and Other Derivatives": continuous zeros at 0.5, 1, 1.5, 2 years and the
-# 2-year semiannual par yield (REFERENCES.md items 7 and 8)
+# 2-year semiannual par yield (tests/REFERENCES.md #7, #8)
 HULL = [
     pytest.param((5.0, 5.8, 6.4, 6.8), 6.873, 5e-4, id="hull-table-4.2-memory-recomputed"),
     pytest.param((5.0, 6.0, 6.5, 7.0), 7.0741, 5e-5, id="hull-par-yield-seen"),

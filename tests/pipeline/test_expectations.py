@@ -19,8 +19,8 @@ from pipeline.tenors import parse_tenor
 LABELS = ["3M", "1Y", "2Y", "10Y"]
 
 
-def make_cfg(quote: str = "par", labels=LABELS, name: str = "govt") -> CurveConfig:
-    return CurveConfig(name=name, quote=quote, tenors=tuple(parse_tenor(t) for t in labels))
+def make_cfg(quote: str = "par", labels=LABELS, name: str = "govt", units: str = "percent") -> CurveConfig:
+    return CurveConfig(name=name, quote=quote, tenors=tuple(parse_tenor(t) for t in labels), units=units)
 
 
 def rows_frame() -> pd.DataFrame:
@@ -53,18 +53,18 @@ def result() -> RowValidation:
     return validate_rows(rows_frame(), make_cfg())
 
 
-def test_each_failing_row_names_the_expectation(result):
+def test_each_failing_row_gives_the_broken_rule_in_plain_words(result):
     rows, cfg = rows_frame(), make_cfg()
     rules = plain_pandas_rules(rows, cfg)
     bad = rules.any(axis=1)
     np.testing.assert_array_equal(result.ok, ~bad.to_numpy())
     assert result.reasons.index.equals(rows.index)
     names = {
-        "null_as_of": "expect_column_values_to_not_be_null: as_of",
-        "null_tenor": "expect_column_values_to_not_be_null: tenor",
-        "null_rate": "expect_column_values_to_not_be_null: rate",
-        "unknown_tenor": "expect_column_values_to_be_in_set: tenor",
-        "out_of_band": "expect_column_values_to_be_between: rate",
+        "null_as_of": "unparseable: the date is missing",
+        "null_tenor": "unparseable: the tenor is missing",
+        "null_rate": "unparseable: the rate is missing",
+        "unknown_tenor": "is not one of curves.govt.tenors",
+        "out_of_band": "outside the plausible band",
     }
     for rule, prefix in names.items():
         for idx in rows.index:
@@ -75,13 +75,14 @@ def test_each_failing_row_names_the_expectation(result):
 
 def test_reason_texts_and_check_names(result):
     r = result.reasons
-    assert r[11] == "expect_column_values_to_be_between: rate 0.45 outside [-0.05, 0.4]"
-    assert r[13] == "expect_column_values_to_be_in_set: tenor 5Y is not a tenor of curve govt"
-    assert r[14] == "expect_column_values_to_be_between: rate -0.051 outside [-0.05, 0.4]"
+    # the frame has no ``value`` column: the number shown is the decimal scaled back to the curve's percent
+    assert r[11] == "out of range: rate 45 (percent) outside the plausible band -5 % to 40 % (tenor 1Y)"
+    assert r[13] == "out of range: tenor 5Y is not one of curves.govt.tenors"
+    assert r[14] == "out of range: rate -5.1 (percent) outside the plausible band -5 % to 40 % (tenor 10Y)"
     # two failures on one row are joined with "; "
-    assert r[18] == ("expect_column_values_to_not_be_null: as_of is missing or not a date; "
-                     "expect_column_values_to_be_in_set: tenor 7Y is not a tenor of curve govt; "
-                     "expect_column_values_to_be_between: rate 0.5 outside [-0.05, 0.4]")
+    assert r[18] == ("unparseable: the date is missing or not a date; "
+                     "out of range: tenor 7Y is not one of curves.govt.tenors; "
+                     "out of range: rate 50 (percent) outside the plausible band -5 % to 40 % (tenor 7Y)")
     # the band's edge is inside: -0.05 passes
     assert r[17] is None
     c = result.check_name
@@ -130,7 +131,8 @@ def test_discount_factor_band(value, ok):
     out = validate_rows(rows, make_cfg(quote="discount", name="swapdf"))
     assert bool(out.ok[0]) is ok
     if not ok:
-        assert out.reasons.iloc[0].endswith("outside (0, 1.5]")
+        # the curve's units are percent (the default): the band is said in percent too
+        assert out.reasons.iloc[0].endswith("outside the plausible band above 0 % and at most 150 % (tenor 1Y)")
 
 
 def test_suites_are_cached_per_curve_configuration():
@@ -156,13 +158,13 @@ def test_awkward_frames_do_not_raise(case):
         rows = pd.DataFrame({"line": [2, 3], "tenor": ["3M", "1Y"], "rate": [0.01, 0.02], "raw": ["a", "b"]})
         out = validate_rows(rows, cfg)
         assert not out.ok.any()
-        assert out.reasons.str.contains("as_of is missing").all()
+        assert out.reasons.str.contains("the date is missing").all()
     elif case == "text-dates":
         rows = pd.DataFrame({"line": [2, 3, 4], "as_of": ["2031-01-02", "2031-02-30", "soon"],
                              "tenor": ["3M", "1Y", "2Y"], "rate": [0.01, 0.02, 0.03], "raw": ["a", "b", "c"]})
         out = validate_rows(rows, cfg)
         assert out.ok.tolist() == [True, False, False]
-        assert out.reasons.iloc[1].startswith("expect_column_values_to_not_be_null: as_of")
+        assert out.reasons.iloc[1].startswith("unparseable: the date is missing")
     else:
         rows = pd.DataFrame({"line": [2, 3], "as_of": pd.to_datetime(["2031-01-02"] * 2),
                              "tenor": pd.Series(["3M", None], dtype="str"), "rate": [0.01, 0.02],
@@ -170,3 +172,31 @@ def test_awkward_frames_do_not_raise(case):
         out = validate_rows(rows, cfg)
         assert out.ok.tolist() == [True, False]
         assert out.check_name.tolist() == [None, "unparseable"]
+
+
+# The file's language: the number as written and its units, the band in the same units. The band is
+# -5 % .. +40 % (CONTRACT / issue 3); percent / 100 and bp / 10,000 are the CONTRACT's conversions, so
+# -5 % .. 40 % is -500 bp .. 4,000 bp and -0.05 .. 0.4 as a decimal.
+@pytest.mark.parametrize(
+    ("units", "written", "expected"),
+    [("percent", 334.0, "out of range: rate 334 (percent) outside the plausible band -5 % to 40 % (tenor 3M)"),
+     ("bp", 4125.5, "out of range: rate 4125.5 (bp) outside the plausible band -500 bp to 4,000 bp (tenor 3M)"),
+     ("decimal", -0.0625, "out of range: rate -0.0625 (decimal) outside the plausible band -0.05 to 0.4 (tenor 3M)")],
+    ids=["percent", "bp", "decimal"],
+)
+def test_out_of_band_reason_quotes_the_file_in_its_units(units, written, expected):
+    divisor = {"percent": 100.0, "bp": 10_000.0, "decimal": 1.0}[units]
+    rows = pd.DataFrame({"line": [7], "as_of": pd.to_datetime(["2031-01-02"]), "tenor": ["3M"],
+                         "rate": [written / divisor], "value": [written], "raw": ["2031-01-02,x"]})
+    out = validate_rows(rows, make_cfg(units=units))
+    assert out.reasons.iloc[0] == expected
+    assert out.check_name.iloc[0] == "out_of_range"
+
+
+def test_no_reason_names_a_library_rule(result):
+    """Every reason a failing row can get from the suite, for every kind of rule: none is a rule's name."""
+    reasons = [r for r in result.reasons if r is not None]
+    assert len(reasons) == int((~result.ok).sum()) > 0
+    for r in reasons:
+        assert "expect_" not in r and "column_values" not in r, r
+        assert "as_of" not in r, r       # the column's name is ours, not the file's

@@ -1,6 +1,6 @@
 """Zero-rate tables and forward surfaces: textbook forwards, the forward rules, and the frames' shape.
 
-References: Hull's forward-rate tables and test-bank example (REFERENCES items 1-4, seen; item 1's
+References: Hull's forward-rate tables and test-bank example (tests/REFERENCES.md #1-#4, seen; #1's
 table layout from memory), the rule F = (r2 T2 - r1 T1) / (T2 - T1) and its discrete form
 (1+R2)^T2 / (1+R1)^T1 = (1+F)^(T2-T1), QuantLib for a forward surface on a real calendar, and a plain
 pandas recomputation of each forward from its two discount factors.
@@ -26,13 +26,13 @@ AS_OF = np.array(["2031-01-15"], dtype="datetime64[D]")
 
 HULL = [
     # (source, tenors, continuous zeros in %, forward start months, tenor months, published forwards %)
-    ("item 1: Hull table 4.5 (8th ed.)", ["1Y", "2Y", "3Y", "4Y", "5Y"], [3.0, 4.0, 4.6, 5.0, 5.3],
+    ("tests/REFERENCES.md #1: Hull table 4.5 (8th ed.)", ["1Y", "2Y", "3Y", "4Y", "5Y"], [3.0, 4.0, 4.6, 5.0, 5.3],
      [12, 24, 36, 48], 12, [5.0, 5.8, 6.2, 6.5]),
-    ("item 2: Hull problem 4.23 (11th ed.)", ["1Y", "2Y", "3Y", "4Y", "5Y"], [2.0, 3.0, 3.7, 4.2, 4.5],
+    ("tests/REFERENCES.md #2: Hull problem 4.23 (11th ed.)", ["1Y", "2Y", "3Y", "4Y", "5Y"], [2.0, 3.0, 3.7, 4.2, 4.5],
      [12, 24, 36, 48], 12, [4.0, 5.1, 5.7, 5.7]),
-    ("item 3: Hull quarterly problem", ["3M", "6M", "9M", "1Y", "15M", "18M"], [8.0, 8.2, 8.4, 8.5, 8.6, 8.7],
-     [3, 6, 9, 12, 15], 3, [8.4, 8.8, 8.8, 9.0, 9.2]),
-    ("item 4: Hull test bank", ["2Y", "3Y"], [6.0, 6.5], [24], 12, [7.5]),
+    ("tests/REFERENCES.md #3: Hull quarterly problem", ["3M", "6M", "9M", "1Y", "15M", "18M"],
+     [8.0, 8.2, 8.4, 8.5, 8.6, 8.7], [3, 6, 9, 12, 15], 3, [8.4, 8.8, 8.8, 9.0, 9.2]),
+    ("tests/REFERENCES.md #4: Hull test bank", ["2Y", "3Y"], [6.0, 6.5], [24], 12, [7.5]),
 ]
 
 
@@ -52,7 +52,7 @@ def test_textbook_forwards_from_zero_tables(source, tenors, zeros, starts, month
 
 
 def test_discrete_compounding_form_of_the_forward_rule():
-    # source: REFERENCES item 4 values, discrete form (1+R2)^T2 / (1+R1)^T1 = (1+F)^(T2-T1)
+    # source: tests/REFERENCES.md #4 values, discrete form (1+R2)^T2 / (1+R1)^T1 = (1+F)^(T2-T1)
     cfg = CurveConfig(name="h", quote="zero", compounding="annual", day_count="30/360", calendar=EXACT)
     c = build_curves(AS_OF, ["2Y", "3Y"], np.array([[0.06, 0.065]]), cfg, method="linear_zero")
     zeros = zero_rate_table(c, ["2Y", "3Y"], cfg)["zero_rate"].to_numpy()

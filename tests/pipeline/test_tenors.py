@@ -11,8 +11,12 @@ SPELLINGS = [
     ("3M", "3M"), ("3m", "3M"), ("3 Mo", "3M"), ("3 month", "3M"), ("3 months", "3M"),
     ("10Y", "10Y"), ("10 Yr", "10Y"), ("10 years", "10Y"), ("10y", "10Y"),
     ("ON", "ON"), ("on", "ON"), ("O/N", "ON"),
-    ("12M", "1Y"), ("24 months", "2Y"), ("1W", "1W"), ("7D", "1W"), ("2 weeks", "2W"), ("5D", "5D"),
+    ("12M", "1Y"), ("24 months", "2Y"), ("1W", "1W"), ("2 weeks", "2W"), ("5D", "5D"),
     (" 6M ", "6M"),
+    # day tenors count business days (README conventions): 1D is the overnight tenor, 7D is not 1W
+    ("1D", "ON"), ("1 day", "ON"), ("7D", "7D"), ("2D", "2D"),
+    # money-market labels (common trade practice): tomorrow-next and spot-next
+    ("TN", "TN"), ("t/n", "TN"), ("Tom-Next", "TN"), ("SN", "SN"), ("S/N", "SN"), ("spot next", "SN"),
 ]
 
 
@@ -40,3 +44,16 @@ def test_zero_months_allowed_for_forward_starts():
 def test_ordering_by_length():
     labels = ["10Y", "ON", "3M", "1W", "1Y", "18M"]
     assert [t.label for t in sorted(parse_tenor(x) for x in labels)] == ["ON", "1W", "3M", "1Y", "18M", "10Y"]
+
+
+def test_short_end_orders_before_weeks_and_months():
+    # nominal lengths (README: tenor_months): ON 1, TN 2, SN 3 days, 1W 7 days, 1M ~30.4 days
+    labels = ["1M", "SN", "1W", "TN", "ON", "2D", "10Y"]
+    assert [t.label for t in sorted(parse_tenor(x) for x in labels)] == ["ON", "2D", "TN", "SN", "1W", "1M", "10Y"]
+
+
+def test_sort_months_are_months_for_month_tenors_and_days_otherwise():
+    assert parse_tenor("18M").sort_months == 18.0 and parse_tenor("10Y").sort_months == 120.0
+    # 7 days in months of 365.25 / 12 days: 0.22998, by hand
+    assert abs(parse_tenor("1W").sort_months - 7 * 12 / 365.25) < 1e-15
+    assert parse_tenor("ON").sort_months < parse_tenor("TN").sort_months < parse_tenor("SN").sort_months

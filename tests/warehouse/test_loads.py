@@ -16,7 +16,7 @@ import pyarrow as pa
 import pyarrow.parquet as pq
 import pytest
 
-from flows.steps import load_files
+from flows.load_step import load_files
 from pipeline.config import load_config
 from tests.conftest import REPO, SMALL_CONFIG
 

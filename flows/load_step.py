@@ -7,6 +7,7 @@ Computation lives in ``pipeline``; storage in ``warehouse``; a step only wires t
 
 from __future__ import annotations
 
+import dataclasses
 import hashlib
 import itertools
 import multiprocessing
@@ -17,17 +18,20 @@ from collections.abc import Callable, Iterable, Sequence
 from concurrent.futures import ProcessPoolExecutor
 from pathlib import Path
 
+import duckdb
+
 from pipeline.config import Config
+from pipeline.errors import UserError
 from pipeline.intake import load_findings, prepare_many, route_curve, validate_intakes
 from pipeline.readers import ReadLimits, ReadResult, read_rate_file
-from warehouse.connect import one_thread, writer
+from warehouse.connect import one_thread, writer_for
 from warehouse.loads import FileBatch, Loader, LoadOutcome, file_batch
 
 __all__ = ["UserError", "load_files", "prepare_files"]
 
 
-class UserError(RuntimeError):
-    """A mistake in what the user asked for; the message is one line."""
+class _NotRegular(UserError):
+    """A path that exists but is no regular file (a named pipe, a device, a socket)."""
 
 
 def _read_regular_file(path: Path, max_bytes: int) -> bytes:
@@ -42,7 +46,8 @@ def _read_regular_file(path: Path, max_bytes: int) -> bytes:
         if stat.S_ISDIR(mode):
             raise IsADirectoryError(path)
         if not stat.S_ISREG(mode):
-            raise UserError(f"{path} is not a regular file (a pipe, device or socket); only files are read")
+            raise _NotRegular(f"{path.name} is not a regular file (a named pipe, device or socket); "
+                              "only regular files are read")
         return f.read(max_bytes + 1)
 
 
@@ -50,6 +55,13 @@ def _read(path: Path, cfg: Config, curve: str | None) -> tuple[dict, ReadResult,
     """Read and route one file (no store access): its lineage fields, what was read, its refusal."""
     try:
         data = _read_regular_file(path, ReadLimits().max_bytes)
+    except _NotRegular as exc:
+        # it is there but cannot be read as a file: recorded as refused with its reason (nothing
+        # read, so the checksum is of no bytes), never skipped without a trace
+        refused = dataclasses.replace(read_rate_file(b"", path.name), error=str(exc))
+        base = dict(source_file=str(path.absolute()), file_name=path.name, sha256=hashlib.sha256(b"").hexdigest(),
+                    size_bytes=0, curve=route_curve(cfg, path.name, curve), layout=None)
+        return base, refused, refused.error
     except IsADirectoryError:
         raise UserError(f"{path} is a directory, not a rate file") from None
     except FileNotFoundError:
@@ -59,8 +71,10 @@ def _read(path: Path, cfg: Config, curve: str | None) -> tuple[dict, ReadResult,
     except OSError as exc:
         raise UserError(f"cannot read {path}: {exc.strerror or exc}") from None
     routed = route_curve(cfg, path.name, curve)
+    # a file no curve's glob routes (a long layout naming its curves) is read with the defaults
     date_format = cfg.curves[routed].date_format if routed else "iso"
-    result = read_rate_file(data, path.name, date_format=date_format)
+    options = cfg.curves[routed].read if routed else None
+    result = read_rate_file(data, path.name, date_format=date_format, options=options)
     base = dict(source_file=str(path.resolve()), file_name=path.name, sha256=hashlib.sha256(data).hexdigest(),
                 size_bytes=len(data), curve=routed, layout=result.layout)
     error = result.error
@@ -113,7 +127,7 @@ def prepare_files(paths: Sequence[Path], cfg: Config, curve: str | None = None
 READ_AHEAD_MIN_FILES = 64
 
 
-def _reader_process() -> ProcessPoolExecutor | None:
+def reader_process() -> ProcessPoolExecutor | None:
     """One forked process that reads and validates files while this one records, or None where fork is missing.
 
     DuckDB holds the interpreter lock while it runs a statement, so a thread would not overlap with the
@@ -133,8 +147,14 @@ def _quiet_reader() -> None:
 
 def load_files(cfg: Config, paths: Iterable[Path], curve: str | None = None,
                on_file: Callable[[LoadOutcome], None] | None = None, chunk: int = 120,
-               read_ahead: bool | None = None, reprocess: bool = False) -> list[LoadOutcome]:
+               read_ahead: bool | None = None, reprocess: bool = False, *,
+               con: duckdb.DuckDBPyConnection | None = None,
+               reader: ProcessPoolExecutor | None = None) -> list[LoadOutcome]:
     """Load each file in its own transaction; returns one outcome per file, in order.
+
+    ``con``: the store to use (default: open one for the call). ``reader``: a reading process made
+    by :func:`reader_process` before the store was opened, used to read ahead (a process forked
+    while the store is open would inherit it, so none is made here when ``con`` is given).
 
     ``reprocess`` loads files whose content was already loaded into the same curve once more, as new
     loads that say so (for a file read under a config since corrected).
@@ -151,7 +171,8 @@ def load_files(cfg: Config, paths: Iterable[Path], curve: str | None = None,
     first = min(chunk, 24) if read_ahead else chunk
     chunks = [files[:first]] + [files[i:i + chunk] for i in range(first, len(files), chunk)] if files else []
     outcomes: list[LoadOutcome] = []
-    ahead = _reader_process() if read_ahead and len(chunks) > 1 else None
+    own = reader is None and con is None and read_ahead and len(chunks) > 1
+    ahead = reader_process() if own else (reader if read_ahead and len(chunks) > 1 else None)
     try:
         if ahead is not None:
             # the first chunk is read here while the reader starts on the second
@@ -159,7 +180,7 @@ def load_files(cfg: Config, paths: Iterable[Path], curve: str | None = None,
             parts: Iterable = itertools.chain([prepare_files(chunks[0], cfg, curve)], (f.result() for f in later))
         else:
             parts = (prepare_files(c, cfg, curve) for c in chunks)
-        with writer(cfg.store_path) as con, one_thread(con):
+        with writer_for(cfg.store_path, con) as con, one_thread(con):
             loader = Loader(con)
             for items in parts:
                 loader.prefetch([i for i in items if isinstance(i, FileBatch)])
@@ -169,11 +190,11 @@ def load_files(cfg: Config, paths: Iterable[Path], curve: str | None = None,
                     if on_file is not None:
                         on_file(outcome)
     except BaseException:
-        if ahead is not None:
+        if ahead is not None and own:
             ahead.shutdown(wait=False, cancel_futures=True)
             ahead = None
         raise
     finally:
-        if ahead is not None:
+        if ahead is not None and own:  # a reader given by the caller is the caller's to stop
             ahead.shutdown(wait=True)
     return outcomes

@@ -125,10 +125,9 @@ def start_prefect(startup: PrefectStartup | None = None,
 
 
 def _failure(console, what: str, exc: BaseException) -> int:  # noqa: ANN001
-    from pipeline.config import ConfigError
-    from warehouse.connect import StoreError
+    from pipeline.errors import AfterwardError
 
-    if isinstance(exc, StoreError | ConfigError):
+    if isinstance(exc, AfterwardError):
         message = str(exc)
     else:
         first = str(exc).splitlines()[0] if str(exc) else ""
@@ -197,7 +196,7 @@ def cli_backfill(config_path: Path, first: str | None, last: str | None, workers
     box: dict[str, object] = {"cluster": None, "cluster_seconds": 0.0}
     with contextlib.ExitStack() as stack:
         def start_cluster() -> None:
-            from flows.backfill import local_cluster
+            from flows.dask_runner import local_cluster
 
             t = time.perf_counter()
             box["cluster"] = stack.enter_context(local_cluster(workers))
@@ -209,7 +208,9 @@ def cli_backfill(config_path: Path, first: str | None, last: str | None, workers
             startup = stack.enter_context(start_prefect(alongside=start_cluster if want_cluster else None))
         except Exception as exc:
             return _failure(console, "starting Prefect or Dask", exc)
-        from flows.backfill import backfill, progress_hook, task_runner_for
+        from flows.backfill import backfill
+        from flows.chunks import progress_hook
+        from flows.dask_runner import task_runner_for
 
         cluster = box["cluster"]
         address = scheduler or (getattr(cluster, "scheduler_address", None) if cluster is not None else None)
@@ -234,7 +235,8 @@ def cli_backfill(config_path: Path, first: str | None, last: str | None, workers
             flow_seconds = time.perf_counter() - t
     for name, c in summary.curves.items():
         failed = f", {c['failed']} could not be built" if c.get("failed") else ""
-        console.print(f"{name}: built {c['days_built']:,} day(s), {c['forwards']:,} forwards{failed}, "
+        held = f", {c['held']:,} held back by reject findings" if c.get("held") else ""
+        console.print(f"{name}: built {c['days_built']:,} day(s), {c['forwards']:,} forwards{failed}{held}, "
                       f"{c.get('realized', 0):,} outcomes realised")
     console.print(f"backfill {first or 'start'}..{last or 'end'} on {mode}: {summary.chunks} chunk(s), "
                   f"{summary.days_built:,} day(s) built")

@@ -41,7 +41,7 @@ import numpy as np
 import pandas as pd
 from scipy import stats
 
-from pipeline.audit_stats import diebold_mariano, hac_mean, hac_ols, rolling_mean_hac_se, wald_pvalue
+from pipeline.audit.hac import diebold_mariano, hac_mean, hac_ols, rolling_mean_hac_se, wald_pvalue
 from pipeline.dates import as_days
 
 __all__ = [

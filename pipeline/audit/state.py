@@ -52,8 +52,8 @@ from typing import Any
 import numpy as np
 from scipy import special
 
-from pipeline.audit import MIN_OBS, TIE
-from pipeline.audit_stats import hln_factor, rolling_mean_hac_se
+from pipeline.audit.hac import hln_factor, rolling_mean_hac_se
+from pipeline.audit.statistics import MIN_OBS, TIE
 from pipeline.dates import as_days
 
 __all__ = [
@@ -177,7 +177,7 @@ def _monomials(rows: dict[str, np.ndarray], centre: float, centre_s: float, cent
 def bartlett_cross(W: np.ndarray, lags: int) -> np.ndarray:
     """``sum_{s,t} (1 - |t-s|/(lags+1))_+ W_s W_t'`` for ``W`` of shape (n, k): (k, k).
 
-    The same quantity as :func:`pipeline.audit_stats.bartlett_long_run` (statsmodels'
+    The same quantity as :func:`pipeline.audit.hac.bartlett_long_run` (statsmodels'
     ``S_hac_simple``), by the same block-sum identity, with one matrix product for the k x k
     products (k is 11 here, too many for elementwise sums).
     """

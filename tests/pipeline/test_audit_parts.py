@@ -1,5 +1,5 @@
 """The whole-record audit computed in parts by cell (as the backfill does on Dask workers) and joined
-is the audit of the whole record; and the store held open for a job is one database for its steps."""
+is the audit of the whole record."""
 
 from __future__ import annotations
 
@@ -7,10 +7,9 @@ import numpy as np
 import pandas as pd
 import pytest
 
-from flows.audit_step import audit_record, join_audits, split_record
+from pipeline.audit.refresh import audit_record, join_audits, split_record
 from pipeline.config import CurveConfig
 from pipeline.tenors import parse_tenor
-from warehouse.connect import connect, held, reader, writer
 
 
 def outcomes(cells: list[tuple[int, int]], n: int = 400) -> pd.DataFrame:
@@ -44,7 +43,7 @@ def test_an_audit_in_parts_by_cell_joins_to_the_audit_of_the_whole(parts):
     # here only the cutting and joining is under test, so equality is exact
     record = outcomes([(3, 3), (3, 12), (12, 3), (12, 12), (24, 60)])
     now = pd.Timestamp("2013-01-01")
-    whole = audit_record(record, curve(), now)
+    whole = audit_record(record, curve().premium_window_days, now)
     pieces = split_record(record, parts)
     assert 1 < len(pieces) <= parts
     assert sum(len(p) for p in pieces) == len(record)
@@ -52,7 +51,8 @@ def test_an_audit_in_parts_by_cell_joins_to_the_audit_of_the_whole(parts):
         cells = set(zip(p["start_months"], p["tenor_months"], strict=True))
         others = [set(zip(q["start_months"], q["tenor_months"], strict=True)) for q in pieces if q is not p]
         assert all(not cells & o for o in others)
-    joined = join_audits([audit_record(p, curve(), now, version=record["realized_at"].max()) for p in pieces])
+    version = record["realized_at"].max()
+    joined = join_audits([audit_record(p, curve().premium_window_days, now, version=version) for p in pieces])
     pd.testing.assert_frame_equal(joined.summary, whole.summary, check_exact=True)
     pd.testing.assert_frame_equal(joined.premium, whole.premium, check_exact=True)
     assert joined.data_version == whole.data_version
@@ -68,30 +68,3 @@ def test_an_audit_in_parts_by_cell_joins_to_the_audit_of_the_whole(parts):
 def test_a_record_of_one_cell_is_not_cut():
     record = outcomes([(3, 12)])
     assert len(split_record(record, 4)) == 1
-
-
-def test_a_held_store_is_one_database_for_every_step_and_is_let_go_at_the_end(tmp_path):
-    path = tmp_path / "held.duckdb"
-    with held(path) as base:
-        with writer(path) as con:
-            con.execute("CREATE TABLE t AS SELECT 1 AS x")
-        with reader(path) as con:  # the same database: sees what the step before wrote
-            assert con.execute("SELECT x FROM t").fetchall() == [(1,)]
-        with held(path) as again:  # re-entrant
-            assert again is base
-        base.execute("INSERT INTO t VALUES (2)")
-    # let go: another process may open it now, and everything written is in the file
-    with connect(path, read_only=True) as con:
-        assert con.execute("SELECT sum(x) FROM t").fetchall() == [(3,)]
-
-
-def test_another_process_cannot_open_a_held_store(tmp_path):
-    import subprocess
-    import sys
-
-    path = tmp_path / "held.duckdb"
-    with held(path):
-        code = ("import sys; from warehouse.connect import connect, StoreLocked\n"
-                f"try:\n    connect({str(path)!r}, read_only=True, wait_seconds=0.2)\n"
-                "except StoreLocked:\n    sys.exit(3)\n")
-        assert subprocess.run([sys.executable, "-c", code], check=False).returncode == 3  # StoreLocked

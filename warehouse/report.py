@@ -1,0 +1,146 @@
+"""What the report reads: each curve's history, episodes, outcomes and premium over a window, and the
+provenance (files, builds, findings, rejected rows) the figures rest on. Read-only queries.
+"""
+
+from __future__ import annotations
+
+import duckdb
+import pandas as pd
+
+from warehouse.frames import read_frame
+from warehouse.query import fetch_one
+
+__all__ = ["curve_span", "episodes", "findings_in_scope", "history", "loads_in_scope", "official_builds",
+           "outcome_pairs", "outcome_version", "pending", "premium", "rejected_in_scope", "stored_summary"]
+
+Con = duckdb.DuckDBPyConnection
+
+
+def _window(column: str, first: str | None, last: str | None) -> tuple[str, list]:
+    where, params = [], []
+    if first:
+        where.append(f"{column} >= CAST(? AS DATE)")
+        params.append(str(first))
+    if last:
+        where.append(f"{column} <= CAST(? AS DATE)")
+        params.append(str(last))
+    return (" AND " + " AND ".join(where)) if where else "", params
+
+
+def curve_span(con: Con, curve: str, first: str | None, last: str | None) -> tuple | None:
+    """(first day, last day, days observed) of the curve's quotes in the window."""
+    w, wp = _window("as_of", first, last)
+    return fetch_one(con, f"SELECT min(as_of), max(as_of), count(DISTINCT as_of) FROM quotes WHERE curve = ?{w}",
+                     [curve, *wp])
+
+
+def history(con: Con, curve: str, first: str | None, last: str | None) -> pd.DataFrame:
+    """as_of, tenor, rate: the curve's zero rates (own compounding and day count) in the window."""
+    w, wp = _window("as_of", first, last)
+    return read_frame(con, f"SELECT as_of, tenor, zero_rate AS rate FROM zero_rates WHERE curve = ?{w} "
+                           "ORDER BY as_of", [curve, *wp])
+
+
+def episodes(con: Con, curve: str, first: str | None, last: str | None) -> pd.DataFrame:
+    """The inversion episodes that overlap the window."""
+    ew, ewp = "", []
+    if first:
+        ew += " AND last_day >= CAST(? AS DATE)"
+        ewp.append(first)
+    if last:
+        ew += " AND first_day <= CAST(? AS DATE)"
+        ewp.append(last)
+    return read_frame(con, f"SELECT short_tenor, long_tenor, first_day, last_day, days, deepest_bp "
+                           f"FROM inversion_episodes WHERE curve = ?{ew} ORDER BY first_day", [curve, *ewp])
+
+
+def outcome_pairs(con: Con, curve: str, pairs: list[tuple[int, int]], first: str | None,
+                  last: str | None) -> pd.DataFrame:
+    """The current outcomes of the (start, tenor) ``pairs`` in the window."""
+    if not pairs:
+        return pd.DataFrame()
+    w, wp = _window("as_of", first, last)
+    values = ", ".join(f"({int(s)}, {int(t)})" for s, t in pairs)
+    return read_frame(
+        con,
+        "SELECT start_months, tenor_months, as_of, target_date, observed_on, forward_rate, realized_rate, "
+        f"spot_rate, error_bp, rw_error_bp FROM outcomes WHERE curve = ?{w} "
+        f"AND (start_months, tenor_months) IN ({values}) ORDER BY start_months, tenor_months, as_of", [curve, *wp])
+
+
+def premium(con: Con, curve: str, tenor_months: int | None, first: str | None, last: str | None) -> pd.DataFrame:
+    """The term-premium record of one tenor (forward starts after 0) in the window."""
+    if tenor_months is None:
+        return pd.DataFrame()
+    w, wp = _window("as_of", first, last)
+    return read_frame(con, "SELECT start_months, tenor_months, as_of, window_days, premium_bp, lower_bp, "
+                           f"upper_bp FROM term_premium WHERE curve = ? AND tenor_months = ?{w} "
+                           "AND start_months > 0 ORDER BY start_months, as_of", [curve, tenor_months, *wp])
+
+
+def pending(con: Con, curve: str, first: str | None, last: str | None) -> int:
+    w, wp = _window("as_of", first, last)
+    row = fetch_one(con, f"SELECT count(*) FROM pending_forwards WHERE curve = ?{w}", [curve, *wp])
+    return int(row[0]) if row else 0
+
+
+def stored_summary(con: Con, curve: str) -> pd.DataFrame:
+    """The stored ``audit_result`` rows of a curve, by start, tenor, regime."""
+    return read_frame(con, "SELECT * FROM audit_result WHERE curve = ? ORDER BY start_months, tenor_months, regime",
+                      [curve])
+
+
+def outcome_version(con: Con, curve: str) -> tuple[object, int]:
+    """(latest realized_at, count) of the curve's current outcomes."""
+    row = fetch_one(con, "SELECT max(realized_at), count(*) FROM outcome WHERE curve = ? AND superseded_at IS NULL",
+                    [curve])
+    return (row[0], int(row[1])) if row else (None, 0)
+
+
+def loads_in_scope(con: Con, curves: list[str], first: str | None, last: str | None) -> pd.DataFrame:
+    """The files the figures rest on (holding current quotes in scope), the files whose rows in scope were
+    all restated or rejected (any version in scope), and the refused files (they carry no dates)."""
+    ph = ", ".join("?" for _ in curves)
+    w, wp = _window("as_of", first, last)
+    return read_frame(
+        con,
+        "SELECT load_id, file_name, source_file, sha256, size_bytes, curve, started_at, finished_at, rows_read, "
+        "rows_accepted, rows_revised, rows_rejected, status, detail, "
+        "load_id IN (SELECT DISTINCT load_id FROM quote_version WHERE superseded_at IS NULL "
+        f"AND curve IN ({ph}){w}) AS current FROM load_log l "
+        "WHERE l.load_id IN (SELECT DISTINCT load_id FROM quote_version "
+        f"WHERE curve IN ({ph}){w}) "
+        f"OR (l.status <> 'loaded' AND (l.curve IS NULL OR l.curve IN ({ph}))) "
+        + ("" if first or last else f"OR (l.rows_rejected > 0 AND l.curve IN ({ph})) ")
+        + "ORDER BY load_id",
+        [*curves, *wp, *curves, *wp, *curves, *([] if first or last else curves)])
+
+
+def official_builds(con: Con, curves: list[str], first: str | None, last: str | None) -> pd.DataFrame:
+    """Official builds by curve, method and program version: days and first/last day."""
+    ph = ", ".join("?" for _ in curves)
+    w, wp = _window("as_of", first, last)
+    return read_frame(
+        con,
+        "SELECT curve, method, code_version, count(*) AS days, min(as_of) AS first_day, max(as_of) AS last_day "
+        f"FROM built_day WHERE scenario = 'official' AND curve IN ({ph}){w} "
+        "GROUP BY curve, method, code_version ORDER BY curve, first_day", [*curves, *wp])
+
+
+def findings_in_scope(con: Con, curves: list[str], first: str | None, last: str | None,
+                      rejects_only: bool = False) -> pd.DataFrame:
+    """The open findings in the window (a finding on a day with an acceptance in force is not open: the
+    count ``status`` and ``check`` show); ``rejects_only``: those holding their day back."""
+    ph = ", ".join("?" for _ in curves)
+    w, wp = _window("as_of", first, last)
+    sev = "AND severity = 'reject' " if rejects_only else ""
+    return read_frame(con, f"SELECT curve, as_of, check_name, severity, tenor, detail FROM open_findings "
+                           f"WHERE curve IN ({ph}){w} {sev}ORDER BY curve, as_of", [*curves, *wp])
+
+
+def rejected_in_scope(con: Con, curves: list[str]) -> pd.DataFrame:
+    """The rejected rows of the curves' files (and of files with no curve)."""
+    ph = ", ".join("?" for _ in curves)
+    return read_frame(con, "SELECT r.load_id, l.file_name, r.line, r.raw, r.reason FROM rejected_rows r "
+                           f"JOIN load_log l USING (load_id) WHERE l.curve IN ({ph}) OR l.curve IS NULL "
+                           "ORDER BY r.load_id, r.line", curves)
