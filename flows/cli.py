@@ -453,6 +453,33 @@ def audit(
 
 
 @app.command()
+def compare(
+    curve: Annotated[str | None, typer.Option("--curve", metavar="CURVE", help="Only this curve.")] = None,
+    start: Annotated[str | None, typer.Option("--start", metavar="TENOR",
+                                              help="Only forecasts starting this far ahead (e.g. 1Y).")] = None,
+    tenor: Annotated[str | None, typer.Option("--tenor", metavar="TENOR",
+                                              help="Only forecasts of this tenor (e.g. 3M).")] = None,
+    first: Annotated[str | None, typer.Option("--from", metavar="DATE", help="First as-of date (YYYY-MM-DD).")] = None,
+    last: Annotated[str | None, typer.Option("--to", metavar="DATE", help="Last as-of date (YYYY-MM-DD).")] = None,
+    fmt: Annotated[str, typer.Option("--format", metavar="FORMAT", help="table | csv | json")] = "table",
+    config: ConfigOption = None,
+) -> None:
+    """Score the forwards against every contender forecast: errors, tests and the confidence set by horizon."""
+    if fmt not in ("table", "csv", "json"):
+        raise _Exit(f"--format {fmt!r} is not allowed; allowed: table, csv, json", 2)
+    s_months, t_months = _months_option(start, "--start"), _months_option(tenor, "--tenor")
+    from flows.compare_step import run_compare
+    from flows.output import print_compare
+
+    cfg = _config(curve)
+    first_day, last_day = _day(first, "--from"), _day(last, "--to")
+    if first_day and last_day and first_day > last_day:
+        raise _Exit(f"--from {first_day} is after --to {last_day}", 2)
+    summary = run_compare(cfg, curve, first_day, last_day)
+    print_compare(summary, fmt, _console(), s_months, t_months)
+
+
+@app.command()
 def model(
     curve: Annotated[str | None, typer.Option("--curve", metavar="CURVE", help="Only this curve.")] = None,
     factors: Annotated[int | None, typer.Option("--factors", metavar="K",

@@ -160,3 +160,29 @@ FROM eh_regression_result;
 CREATE OR REPLACE VIEW model_term_premium AS
 SELECT curve, as_of, maturity_months, fit, model_yield, risk_neutral_yield, term_premium, estimated_through
 FROM model_term_premium_point;
+
+-- one row per (curve, contender, as_of, start_months, tenor_months): every contender's realised
+-- forecast of the zero rate for the tenor on the target date (decimals; error_bp in bp)
+CREATE OR REPLACE VIEW contender_outcomes AS
+SELECT curve, contender, as_of, start_months, tenor_months, target_date, observed_on, forecast_rate, realized_rate,
+       error_bp
+FROM contender_outcome;
+
+-- one row per (curve, contender, start_months, tenor_months): scores on the cell's common sample;
+-- n_effective = n / h, indicative when it is below 10
+CREATE OR REPLACE VIEW contender_scores AS
+SELECT curve, contender, start_months, tenor_months, n, n_effective, mean_error_bp, hac_t, rmse_bp, mae_bp,
+       rmse_ratio, indicative
+FROM contender_score;
+
+-- one row per (curve, start_months, tenor_months, contender_a, contender_b, test): dm (HLN),
+-- clark_west (one-sided, contender_a nested in contender_b) or gw (conditional, chi-square q = 2)
+CREATE OR REPLACE VIEW contender_tests AS
+SELECT curve, start_months, tenor_months, contender_a, contender_b, test, statistic, p_value, n
+FROM contender_test;
+
+-- one row per (curve, start_months, tenor_months, contender): Model Confidence Set p-value and
+-- membership at 10 %
+CREATE OR REPLACE VIEW confidence_set AS
+SELECT curve, start_months, tenor_months, contender, mcs_p_value, included
+FROM confidence_set_result;

@@ -13,6 +13,7 @@ from pipeline.contenders.forecasts import (
     attach_outcomes,
     builtin_contenders,
     is_user_name,
+    model_expected_forecasts,
     realize_forecasts,
     trailing_premium,
 )
@@ -25,6 +26,7 @@ __all__ = [
     "builtin_contenders",
     "compare",
     "is_user_name",
+    "model_expected_forecasts",
     "realize_forecasts",
     "trailing_premium",
 ]
