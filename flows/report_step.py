@@ -22,7 +22,9 @@ from warehouse import report as store
 from warehouse.connect import reader
 from warehouse.schema import schema_version
 
-__all__ = ["gather_report", "program_version", "report_path", "write_report"]
+__all__ = ["MODEL_PREMIUM_MONTHS", "gather_report", "program_version", "report_path", "write_report"]
+
+MODEL_PREMIUM_MONTHS = (24, 60, 120)  # the model term premium charted: 2, 5 and 10 years
 
 
 def program_version() -> str:
@@ -69,6 +71,7 @@ def _curve_report(con, cfg: Config, name: str, first: str | None, last: str | No
     premium_tenor = pairs[0][1] if pairs else None
     premium = store.premium(con, name, premium_tenor, first, last)
     window_days = int(premium["window_days"].iloc[0]) if len(premium) else c.premium_window_days
+    scores, mcs, verdicts, compared = store.comparison(con, name)
     return CurveReport(
         name=name, conventions=_conventions(c), tenors=c.tenor_labels, history=store.history(con, name, first, last),
         history_label=f"zero rate ({freq}, {c.day_count})",
@@ -79,6 +82,8 @@ def _curve_report(con, cfg: Config, name: str, first: str | None, last: str | No
         first_day=span[0] if span else None, last_day=span[1] if span else None,
         days_observed=int(span[2]) if span and span[2] is not None else 0,
         pending=store.pending(con, name, first, last), notes=tuple(notes),
+        contender_scores=scores, confidence_set=mcs, contender_verdicts=verdicts, compared=compared,
+        model_premium=store.model_premium(con, name, MODEL_PREMIUM_MONTHS, first, last),
     )
 
 
