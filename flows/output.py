@@ -164,24 +164,29 @@ def print_audit(results: dict, fmt: str, console, start: int | None = None, teno
 
     main = allf.loc[allf["regime"] == "all"]
     t = Table(title="forecast error by horizon (forward minus realised, bp)")
-    for col in ("curve", "start", "tenor", "n", "mean", "HAC t", "RMSE", "no-change RMSE", "ratio", "DM p",
-                "MZ p", "FB beta", "hit rate"):
+    for col in ("curve", "start", "tenor", "n", "indep.", "mean", "HAC t", "HAC p", "RMSE", "no-change RMSE",
+                "ratio", "DM p", "MZ p", "FB beta", "hit rate"):
         t.add_column(col, justify="right" if col not in ("curve",) else "left")
 
     def num(v, fmt_: str = "{:.1f}") -> str:  # noqa: ANN001
         return "" if v is None or (isinstance(v, float) and not math.isfinite(v)) else fmt_.format(v)
 
     for _, r in main.iterrows():
+        flag = r.get("indicative")
+        indep = num(r.get("n_effective"), "{:,.1f}") + ("*" if flag is not None and not pd.isna(flag) and flag else "")
         t.add_row(r["curve"], _label(int(r["start_months"])), _label(int(r["tenor_months"])), f"{int(r['n']):,}",
-                  num(r["mean_error_bp"]), num(r["hac_t"], "{:.2f}"), num(r["rmse_bp"]), num(r["rw_rmse_bp"]),
-                  num(r["rmse_ratio"], "{:.2f}"), num(r["dm_pvalue"], "{:.3f}"), num(r["mz_pvalue"], "{:.3f}"),
+                  indep, num(r["mean_error_bp"]), num(r["hac_t"], "{:.2f}"), num(r.get("hac_pvalue"), "{:.3f}"),
+                  num(r["rmse_bp"]), num(r["rw_rmse_bp"]), num(r["rmse_ratio"], "{:.2f}"),
+                  num(r.get("dm_pvalue_fixed_b"), "{:.3f}"), num(r["mz_pvalue"], "{:.3f}"),
                   num(r["fb_beta"], "{:.2f}"), num(r["hit_rate"], "{:.0%}"))
     console.print(t)
     for _, r in main.iterrows():
         console.print(f"{r['curve']} {_label(int(r['start_months']))} x {_label(int(r['tenor_months']))}: "
                       f"{r['verdict']}")
-    console.print("Statistical findings for model validation, not investment advice; overlapping forecasts are "
-                  "accounted for with Newey-West standard errors.")
+    console.print("Statistical findings for model validation, not investment advice. Overlapping forecasts are "
+                  "accounted for with Newey-West standard errors and fixed-b p-values (HAC p, DM p); 'indep.' is "
+                  "n over the overlap, the independent forecast periods, and * marks fewer than 10: indicative "
+                  "only. The plain normal DM p is in --format csv / json and the audit_summary view.")
 
 
 def compare_rows(summary, start: int | None = None, tenor: int | None = None):  # noqa: ANN001, ANN201

@@ -124,11 +124,14 @@ WHERE NOT EXISTS (SELECT 1 FROM outcome o
                   WHERE o.superseded_at IS NULL AND o.curve = f.curve AND o.as_of = f.as_of
                     AND o.start_months = f.start_months AND o.tenor_months = f.tenor_months);
 
--- one row per (curve, start_months, tenor_months, regime)
+-- one row per (curve, start_months, tenor_months, regime); after the contract's columns, the overlap-honest
+-- ones: n_effective = n / h (non-overlapping forecast periods), hac_pvalue and dm_pvalue_fixed_b (fixed-b
+-- p-values of hac_t and of the DM statistic before its HLN factor; dm_pvalue stays the plain figure) and
+-- indicative (n_effective < 10)
 CREATE OR REPLACE VIEW audit_summary AS
 SELECT curve, start_months, tenor_months, regime, n, first_as_of, last_as_of, mean_error_bp, rmse_bp, mae_bp,
        hac_t, rw_rmse_bp, rmse_ratio, dm_stat, dm_pvalue, mz_alpha, mz_beta, mz_pvalue, fb_beta, fb_beta_se,
-       fb_r2, hit_rate
+       fb_r2, hit_rate, n_effective, hac_pvalue, dm_pvalue_fixed_b, indicative
 FROM audit_result;
 
 -- one row per (curve, as_of, start_months, tenor_months)

@@ -423,15 +423,19 @@ def _errors_body(c: CurveReport, i: int) -> str:
         out.append('<p class="more">Forwards starting now (0M) are the spot rate itself; their error is zero by '
                    "construction, so they are left out of the table and the charts.</p>")
         s = s[s["start_months"] > 0]
-    head = ["Start", "Tenor", _nh("n"), _nh("Mean error (bp)"), _nh("HAC 95 % interval (bp)"), _nh("Lags"),
-            _nh("RMSE fwd (bp)"), _nh("RMSE no-change (bp)"), _nh("RMSE ratio"), _nh("DM p"), _nh("MZ slope"),
+    head = ["Start", "Tenor", _nh("n"), _nh("Independent periods"), _nh("Mean error (bp)"),
+            _nh("HAC 95 % interval (bp)"), _nh("Lags"), _nh("Bias p (fixed-b)"), _nh("RMSE fwd (bp)"),
+            _nh("RMSE no-change (bp)"), _nh("RMSE ratio"), _nh("DM p"), _nh("DM p (fixed-b)"), _nh("MZ slope"),
             _nh("MZ p"), _nh("FB slope"), _nh("Hit rate")]
     body = []
     for _, r in s.iterrows():
+        flag = r.get("indicative")
+        indep = fmt_num(r.get("n_effective"), 1) + (" *" if not is_missing(flag) and bool(flag) else "")
         cells = [months_label(r["start_months"]), months_label(r["tenor_months"]), _n(fmt_count(r["n"])),
-                 _n(fmt_bp(r["mean_error_bp"], signed=True)), _n(_interval(r)),
-                 _n(fmt_count(r.get("lags"))), _n(fmt_bp(r["rmse_bp"])), _n(fmt_bp(r["rw_rmse_bp"])),
-                 _n(fmt_num(r["rmse_ratio"], 2)), _n(fmt_pvalue(r["dm_pvalue"])), _n(fmt_num(r["mz_beta"], 2)),
+                 _n(indep), _n(fmt_bp(r["mean_error_bp"], signed=True)), _n(_interval(r)),
+                 _n(fmt_count(r.get("lags"))), _n(fmt_pvalue(r.get("hac_pvalue"))), _n(fmt_bp(r["rmse_bp"])),
+                 _n(fmt_bp(r["rw_rmse_bp"])), _n(fmt_num(r["rmse_ratio"], 2)), _n(fmt_pvalue(r["dm_pvalue"])),
+                 _n(fmt_pvalue(r.get("dm_pvalue_fixed_b"))), _n(fmt_num(r["mz_beta"], 2)),
                  _n(fmt_pvalue(r["mz_pvalue"])), _n(fmt_num(r["fb_beta"], 2)),
                  _n(fmt_pct(r["hit_rate"], 0) if not is_missing(r["hit_rate"]) else MISSING)]
         verdict = r.get("verdict")
@@ -445,12 +449,17 @@ def _errors_body(c: CurveReport, i: int) -> str:
                + "".join(h.html("th") if isinstance(h, _Cell) else f"<th>{esc(h)}</th>" for h in head)
                + "</tr></thead><tbody>" + "".join(body) + "</tbody></table></div>")
     out.append('<p class="more">Mean error: forward minus realised rate. HAC: Newey-West (Bartlett) with the '
-               "lags shown (the overlap of consecutive forecasts). RMSE ratio: forward over no-change; below 1 "
+               "lags shown (the overlap of consecutive forecasts); the interval is the plain normal one. "
+               "Independent periods: outcomes over the overlap, the number of forecasts that share no future; "
+               "* marks fewer than 10, where every figure of the row is indicative only. Bias p (fixed-b): "
+               "p-value of the mean error's HAC t under the fixed-b null for overlapping forecasts (the plain "
+               "normal reading over-rejects at heavy overlap). RMSE ratio: forward over no-change; below 1 "
                "the forwards forecast better. DM p: Diebold-Mariano test (Harvey-Leybourne-Newbold form) of "
-               "equal squared error against no-change. MZ: Mincer-Zarnowitz regression of realised on forward "
+               "equal squared error against no-change; DM p (fixed-b): the same statistic under the fixed-b "
+               "null. MZ: Mincer-Zarnowitz regression of realised on forward "
                "(p: joint test of intercept 0 and slope 1). FB slope: Fama-Bliss slope of the realised change on "
                "the forward-spot spread. Hit rate: share of predicted moves whose direction came true. "
-               "Significance at 5 %.</p>")
+               "Significance at 5 %, judged by the fixed-b p-values.</p>")
     regimes = c.summary[(c.summary["regime"] != "all") & (c.summary["start_months"] > 0)] \
         if "regime" in c.summary else pd.DataFrame()
     if len(regimes):
