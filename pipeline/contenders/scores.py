@@ -14,14 +14,13 @@ from __future__ import annotations
 
 import numpy as np
 
-from pipeline.audit import MIN_OBS, TIE
+from pipeline.audit import INDICATIVE_BELOW, MIN_OBS, TIE
 from pipeline.audit.fixed_b import pvalue_two_sided
 from pipeline.audit.hac import hac_mean
 from pipeline.contenders.cells import Cell
 
-__all__ = ["INDICATIVE_BELOW", "SCORE_COLUMNS", "SCORE_EXTRA_COLUMNS", "cell_scores"]
+__all__ = ["SCORE_COLUMNS", "SCORE_EXTRA_COLUMNS", "cell_scores"]
 
-INDICATIVE_BELOW = 10.0  # non-overlapping periods: fewer, and every figure of the cell is indicative only
 SCORE_COLUMNS = ("curve", "contender", "start_months", "tenor_months", "n", "n_effective", "mean_error_bp",
                  "hac_t", "rmse_bp", "mae_bp", "rmse_ratio", "indicative")
 SCORE_EXTRA_COLUMNS = ("h", "lags", "hac_p_value")
