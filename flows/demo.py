@@ -8,9 +8,10 @@ from __future__ import annotations
 
 from pathlib import Path
 
-from pipeline.config import load_config
+from pipeline.config import Config, load_config
+from pipeline.demo.desk_view import DESK_VIEW_FILE, DESK_VIEW_NAME, DESK_VIEW_WEEKDAY
 
-__all__ = ["make_demo_folder", "run_demo"]
+__all__ = ["load_desk_view", "make_demo_folder", "run_demo"]
 
 
 def make_demo_folder(directory: Path) -> Path:
@@ -23,6 +24,21 @@ def make_demo_folder(directory: Path) -> Path:
     cfg = load_config(config_path)
     write_demo_inbox(cfg.inbox)
     return config_path
+
+
+def load_desk_view(cfg: Config, directory: Path, *, con) -> tuple[Path, object]:  # noqa: ANN001
+    """Write the treasury desk's weekly view (:mod:`pipeline.demo.desk_view`), drawn from the store's
+    built forwards and their outcomes, to ``directory / DESK_VIEW_FILE`` and load it as the contender
+    ``DESK_VIEW_NAME``; returns the file and its load outcome. Run after ``realize``."""
+    from flows.forecasts_step import load_forecasts
+    from pipeline.demo.desk_view import desk_view_csv, desk_view_forecasts
+    from warehouse.forecasts import forward_sample
+
+    path = directory / DESK_VIEW_FILE
+    path.parent.mkdir(parents=True, exist_ok=True)
+    path.write_bytes(desk_view_csv(desk_view_forecasts(forward_sample(con, DESK_VIEW_WEEKDAY))))
+    [outcome] = load_forecasts(cfg, [path], DESK_VIEW_NAME, units="percent", con=con)
+    return path, outcome
 
 
 def run_demo(directory: Path, console) -> None:  # noqa: ANN001
@@ -81,6 +97,10 @@ def run_demo(directory: Path, console) -> None:  # noqa: ANN001
                 console.print(f"realize: {realized.realized:,} outcomes; {pending:,} forwards still pending")
                 rows = sum(len(f) for f in run_audit(cfg, con=con).values())
                 console.print(f"audit: {rows} horizon x regime rows in audit_summary; see 'afterward audit'")
+                desk_path, desk = load_desk_view(cfg, directory, con=con)
+                console.print(f"forecasts: {DESK_VIEW_NAME} ({desk.rows_accepted:,} weekly forecasts of the forward "
+                              f"grid) loaded from {desk_path}")
+                # the compare step goes here: the desk view is the contender DESK_VIEW_NAME, its file desk_path
         finally:
             if reader is not None:
                 reader.shutdown(wait=True)

@@ -180,13 +180,24 @@ def read_forecast_file(data: bytes, name: str = "", *, date_format: str = "iso",
     raw = np.asarray(grid.raws, dtype=object)
     reason = np.full(n, None, dtype=object)
     check = np.full(n, None, dtype=object)
-    shape_bad = np.array([r[:1] == ["\x00too-long"] or len(r) > width for r in grid.records], dtype=bool)
-    reason[shape_bad] = np.where(
-        np.array([r[:1] == ["\x00too-long"] for r in grid.records], dtype=bool)[shape_bad],
-        "unparseable: a field is longer than the reader accepts", "unparseable: more fields than the header")
-    check[shape_bad] = "unparseable"
-    padded = [[""] * width if bad else (r + [""] * (width - len(r))) for r, bad in
-              zip(grid.records, shape_bad.tolist(), strict=True)]
+    too_long = np.zeros(n, dtype=bool)
+    too_wide = np.zeros(n, dtype=bool)
+    padded = []
+    blank = [""] * width
+    for i, r in enumerate(grid.records):     # one pass to split the lines into columns
+        if len(r) == width:
+            padded.append(r)
+        elif r[:1] == ["\x00too-long"]:
+            too_long[i] = True
+            padded.append(blank)
+        elif len(r) > width:
+            too_wide[i] = True
+            padded.append(blank)
+        else:
+            padded.append(r + [""] * (width - len(r)))
+    reason[too_long] = "unparseable: a field is longer than the reader accepts"
+    reason[too_wide] = "unparseable: more fields than the header"
+    check[too_long | too_wide] = "unparseable"
     cols = [np.asarray(c, dtype=object) for c in zip(*padded, strict=True)] if n else \
         [np.zeros(0, dtype=object) for _ in range(width)]
 
@@ -225,8 +236,11 @@ def read_forecast_file(data: bytes, name: str = "", *, date_format: str = "iso",
     no_rate = (r_missing[r_inv] if n else np.zeros(0, dtype=bool)) & pd.isna(reason)
     rate_reason = r_reason[r_inv] if n else np.zeros(0, dtype=object)
     fail(~no_rate & pd.notna(rate_reason), rate_reason, "unparseable")
-    curve = (np.array([c.strip() or None for c in column("curve").astype(str).tolist()], dtype=object)
-             if has_curve else np.full(n, None, dtype=object))
+    if has_curve:
+        c_uniq, c_inv = np.unique(column("curve").astype(str), return_inverse=True)
+        curve = np.array([c.strip() or None for c in c_uniq.tolist()], dtype=object)[c_inv]
+    else:
+        curve = np.full(n, None, dtype=object)
     ok = pd.isna(reason) & ~no_rate
     rows = pd.DataFrame({
         "line": line[ok], "as_of": as_of[ok].astype("datetime64[s]"), "start_months": start[ok],
