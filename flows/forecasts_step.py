@@ -22,7 +22,6 @@ import pyarrow as pa
 
 from flows.load_step import _NotRegular, _read_regular_file
 from pipeline.config import Config
-from pipeline.contenders.forecasts import BUILTIN, is_user_name
 from pipeline.errors import AfterwardError
 from pipeline.forecast_intake import ForecastRead, prepare_forecasts, read_forecast_file
 from pipeline.readers import UNIT_DIVISORS, ReadLimits
@@ -48,6 +47,8 @@ class _Staged:
 
 
 def _check_request(cfg: Config, name: str, curve: str | None, units: str | None) -> None:
+    from pipeline.contenders.forecasts import BUILTIN, is_user_name
+
     if not is_user_name(name):
         if name in BUILTIN:
             raise ForecastRequestError(f"--name {name!r} is a built-in contender ({', '.join(BUILTIN)}); "

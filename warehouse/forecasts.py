@@ -29,7 +29,6 @@ import numpy as np
 import pandas as pd
 import pyarrow as pa
 
-from pipeline.contenders.forecasts import FORECAST_COLUMNS
 from warehouse.frames import read_frame
 from warehouse.loads import RATE_EPS, LoadOutcome, utc_now
 from warehouse.query import fetch_value
@@ -146,6 +145,9 @@ def current_forecasts(con: duckdb.DuckDBPyConnection, curve: str | None = None, 
     (curve, contender, as_of, start_months, tenor_months). ``as_known_at``: the versions as they stood
     at that UTC time instead (recorded by then and not yet superseded).
     """
+    # imported here: the contenders package brings scipy.stats, which `forecasts list` does not need
+    from pipeline.contenders.forecasts import FORECAST_COLUMNS
+
     if not table_exists(con, "forecast_version"):    # a store opened read-only from before forecasts existed
         return pd.DataFrame({c: pd.Series([], dtype=t) for c, t in zip(FORECAST_COLUMNS, (
             object, object, "datetime64[s]", "int64", "int64", "float64"), strict=True)})
