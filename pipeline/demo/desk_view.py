@@ -15,8 +15,6 @@ file, byte for byte.
 
 from __future__ import annotations
 
-import io
-
 import numpy as np
 import pandas as pd
 from scipy.signal import lfilter
@@ -78,15 +76,12 @@ def desk_view_csv(view: pd.DataFrame) -> bytes:
     """The view as a forecast file: ``as_of,curve,start,tenor,rate``, rates in percent to 4 decimals
     (0.01 bp), rows by as_of, curve, start, tenor."""
     v = view.sort_values(["as_of", "curve", "start_months", "tenor_months"], kind="stable")
-    labels = {m: month_label(int(m)) for m in np.unique(np.r_[v["start_months"].to_numpy(),
-                                                                v["tenor_months"].to_numpy()]).tolist()}
-    out = pd.DataFrame({
-        "as_of": pd.to_datetime(v["as_of"]).dt.strftime("%Y-%m-%d").to_numpy(),
-        "curve": v["curve"].to_numpy(),
-        "start": v["start_months"].map(labels).to_numpy(),
-        "tenor": v["tenor_months"].map(labels).to_numpy(),
-        "rate": np.round(v["rate"].to_numpy(dtype=float) * 100.0, 4),
-    })
-    buf = io.StringIO()
-    out.to_csv(buf, index=False, lineterminator="\n", float_format="%.4f")
-    return buf.getvalue().encode("utf-8")
+    months = np.r_[v["start_months"].to_numpy(), v["tenor_months"].to_numpy()]
+    uniq = np.unique(months)
+    labels = np.array([month_label(int(m)) for m in uniq.tolist()], dtype=object)
+    start = labels[np.searchsorted(uniq, v["start_months"].to_numpy())]
+    tenor = labels[np.searchsorted(uniq, v["tenor_months"].to_numpy())]
+    day = np.datetime_as_string(v["as_of"].to_numpy().astype("datetime64[D]"), unit="D").astype(object)
+    rate = np.char.mod("%.4f", np.round(v["rate"].to_numpy(dtype=float) * 100.0, 4)).astype(object)
+    lines = day + "," + v["curve"].to_numpy(dtype=object) + "," + start + "," + tenor + "," + rate
+    return ("as_of,curve,start,tenor,rate\n" + "\n".join(lines.tolist()) + ("\n" if len(lines) else "")).encode()
