@@ -176,6 +176,54 @@ def load(
         raise typer.Exit(1)
 
 
+# --- forecasts (user contenders) -----------------------------------------------------------------
+
+forecasts_app = typer.Typer(cls=_Group, no_args_is_help=True,
+                            help="Load a team's own forecast files, scored later beside the forwards.")
+app.add_typer(forecasts_app, name="forecasts")
+
+
+@forecasts_app.command("load")
+def forecasts_load(
+    files: Annotated[list[Path], typer.Argument(metavar="FILE...", help="Forecast files (CSV, Parquet, .xlsx): "
+                                                "as_of, start, tenor, rate[, curve].")],
+    name: Annotated[str, typer.Option("--name", metavar="NAME", help="The contender's name: a lower-case "
+                                      "letter, then lower-case letters, digits or _; not a built-in.")],
+    curve: Annotated[str | None, typer.Option("--curve", metavar="CURVE", help="The curve of rows without a curve "
+                                              "column (required if the file has none).")] = None,
+    units: Annotated[str | None, typer.Option("--units", metavar="UNITS", help="percent | decimal | bp (default: "
+                                              "the curve's units).")] = None,
+    config: ConfigOption = None,
+) -> None:
+    """Load forecast files as one contender, each in one transaction, and report what happened to every row."""
+    from flows.forecasts_step import load_forecasts
+
+    cfg = _config()
+    console = _console()
+    outcomes = load_forecasts(cfg, files, name, curve, units,
+                              on_file=lambda o: console.print(describe_outcome(o), markup=False))
+    if any(o.status == "refused" or o.rows_rejected for o in outcomes):
+        raise typer.Exit(1)
+
+
+@forecasts_app.command("list")
+def forecasts_list(
+    fmt: Annotated[str, typer.Option("--format", metavar="FORMAT", help="table | csv | json")] = "table",
+    config: ConfigOption = None,
+) -> None:
+    """What forecasts are loaded: per name and curve, files, current rows, first and last as-of, last load."""
+    if fmt not in ("table", "csv", "json"):
+        raise _Exit(f"--format {fmt!r} is not allowed; allowed: table, csv, json", 2)
+    from flows.forecasts_step import list_forecasts
+    from flows.output import write_result
+
+    table = list_forecasts(_config())
+    if fmt == "table" and table.num_rows == 0:
+        _console().print("no forecasts loaded (afterward forecasts load FILE... --name NAME)", markup=False)
+        return
+    write_result(table, fmt, None, _console())
+
+
 # --- sql -----------------------------------------------------------------------------------------
 
 _ALLOWED_STATEMENTS = {"SELECT", "EXPLAIN"}

@@ -37,6 +37,7 @@ from warehouse import audit as audit_store
 from warehouse import contenders as store
 from warehouse import outcomes as outcome_store
 from warehouse.connect import transaction, writer_for
+from warehouse.forecasts import current_forecasts
 from warehouse.loads import utc_now
 
 __all__ = ["CompareSummary", "compare_due", "run_compare"]
@@ -49,15 +50,6 @@ class CompareSummary:
     ``not_realised`` (per contender: forecasts with no outcome yet or off every stored tenor)."""
 
     curves: dict[str, dict] = field(default_factory=dict)
-
-
-def _user_forecasts(con, curve: str) -> pd.DataFrame:  # noqa: ANN001
-    try:
-        from warehouse.forecasts import current_forecasts
-    except ImportError:  # pragma: no cover - the forecast files' tables arrive with `forecasts load`
-        return pd.DataFrame({c: [] for c in ("curve", "contender", "as_of", "start_months", "tenor_months",
-                                             "forecast_rate")})
-    return current_forecasts(con, curve)
 
 
 def _model_expected(con, c: CurveConfig, name: str, keys: pd.DataFrame) -> pd.DataFrame:  # noqa: ANN001
@@ -111,7 +103,7 @@ def _contender_outcomes(con, cfg: Config, name: str) -> tuple[pd.DataFrame, dict
     outcomes = audit_store.read_outcomes(con, name, None)
     parts = [builtin_contenders(outcomes, window=c.premium_window_days, min_history=c.compare_min_history)]
     keys = outcomes[["curve", "as_of", "start_months", "tenor_months"]]
-    user = _user_forecasts(con, name)
+    user = current_forecasts(con, name)
     found = [f for f in (_model_expected(con, c, name, keys), store.what_if_forecasts(con, name), user) if len(f)]
     not_realised: dict[str, int] = {}
     if found and len(outcomes):
@@ -192,6 +184,6 @@ def compare_due(cfg: Config, *, con: duckdb.DuckDBPyConnection | None = None) ->
                 last.observed_through is None
                 or np.datetime64(now_through, "M") > np.datetime64(last.observed_through, "M"))
             if (month_closed or last.first_as_of is not None or last.last_as_of is not None
-                    or last.inputs_digest != _inputs_digest(con, c, name, _user_forecasts(con, name))):
+                    or last.inputs_digest != _inputs_digest(con, c, name, current_forecasts(con, name))):
                 due.append(name)
     return due

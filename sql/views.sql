@@ -51,6 +51,30 @@ CREATE OR REPLACE VIEW rejected_rows AS
 SELECT load_id, source_file, line, raw, reason
 FROM rejected_row;
 
+-- one row per (curve, contender, as_of, start_months, tenor_months): the current version of each user
+-- forecast (`afterward forecasts load`); forecast_rate decimal, a zero rate in the curve's own compounding
+CREATE OR REPLACE VIEW forecasts AS
+SELECT curve, contender, as_of, start_months, tenor_months, forecast_rate, recorded_at, source_file
+FROM forecast_version
+WHERE superseded_at IS NULL;
+
+-- one row per (curve, contender, as_of, start_months, tenor_months, version): every user forecast ever
+-- loaded; superseded_at NULL while current
+CREATE OR REPLACE VIEW forecast_history AS
+SELECT curve, contender, as_of, start_months, tenor_months, forecast_rate, recorded_at, superseded_at, source_file
+FROM forecast_version;
+
+-- one row per forecast-file load attempt; curve: the curves its rows went to; units NULL: each curve's own
+CREATE OR REPLACE VIEW forecast_loads AS
+SELECT load_id, contender, source_file, sha256, curve, units, started_at, finished_at, rows_read, rows_accepted,
+       rows_revised, rows_rejected, status, detail
+FROM forecast_load;
+
+-- one row per rejected forecast-file row (line 0 = the whole file could not be read)
+CREATE OR REPLACE VIEW forecast_rejected_rows AS
+SELECT load_id, source_file, line, raw, reason, check_name
+FROM forecast_rejected_row;
+
 -- one row per acceptance still in force: no quote version of its day recorded after it was given
 CREATE OR REPLACE VIEW acceptance_in_force AS
 SELECT a.curve, a.as_of, a.accepted_by, a.accepted_at, a.note AS reason
