@@ -588,6 +588,27 @@ def compare(
 
 
 @app.command()
+def changes(
+    since: Annotated[str, typer.Option("--since", metavar="TS", help="Since this time (ISO 8601; UTC when no zone "
+                                                                     "is given).")],
+    curve: Annotated[str | None, typer.Option("--curve", metavar="CURVE", help="Only this curve.")] = None,
+    fmt: Annotated[str, typer.Option("--format", metavar="FORMAT", help="table | csv | json")] = "table",
+    config: ConfigOption = None,
+) -> None:
+    """What changed in the record since a time, and why: restated quotes, rebuilt days, superseded outcomes,
+    audit cells that moved."""
+    if fmt not in ("table", "csv", "json"):
+        raise _Exit(f"--format {fmt!r} is not allowed; allowed: table, csv, json", 2)
+    from flows.changes_step import change_rows, changes_since
+    from flows.known_at_step import parse_known_at
+    from flows.output import print_changes
+
+    ts = parse_known_at(since, "--since")
+    cfg = _config(curve)
+    print_changes(change_rows(changes_since(cfg, ts, curve)), fmt, _console(), ts)
+
+
+@app.command()
 def model(
     curve: Annotated[str | None, typer.Option("--curve", metavar="CURVE", help="Only this curve.")] = None,
     factors: Annotated[int | None, typer.Option("--factors", metavar="K",

@@ -147,3 +147,35 @@ def test_history_known_before_it_was_loaded_is_seen_as_known_then(tmp_path) -> N
     assert int(seen.stdout.strip().splitlines()[-1]) == days.size
     early = run_cli("sql", "SELECT 1", "--as-known-at", "2011-02-01", "--config", cfgp, cwd=tmp_path)
     assert early.returncode == 2 and "before the first load" in early.stderr
+
+
+def test_changes_since_t1_lists_the_restated_day_its_rebuild_and_the_cells_that_moved(history) -> None:  # noqa: ANN001
+    p, t1, saved = history
+    done = run_cli("changes", "--since", t1, "--format", "json", "--config", str(p.root / "afterward.toml"),
+                   cwd=p.root, timeout=300)
+    assert done.returncode == 0, done.stderr
+    rows = json.loads(done.stdout)
+    kinds = {k: [r for r in rows if r["kind"] == k] for k in ("restated", "rebuilt", "superseded", "audit")}
+    # exactly the six tenors of 2011-06-15, old -> new, and the load that restated them
+    assert sorted(r["item"] for r in kinds["restated"]) == sorted(TENORS)
+    assert {str(r["as_of"])[:10] for r in kinds["restated"]} == {"2011-06-15"}
+    assert all("day_restated.csv" in r["why"] for r in kinds["restated"])
+    old = p.sql("SELECT tenor, rate FROM quote_history WHERE as_of = DATE '2011-06-15' AND superseded_at IS NOT NULL")
+    assert {r["item"]: float(r["old"]) for r in kinds["restated"]} == pytest.approx(
+        dict(zip(old["tenor"], old["rate"], strict=True)), rel=1e-9)
+    # of the days known at T1, only the restated one was built again
+    assert [str(r["as_of"])[:10] for r in kinds["rebuilt"]] == ["2011-06-15"]
+    assert kinds["superseded"]  # the outcomes resting on that day were re-derived
+    # every cell whose mean error moved is listed with its T1 figure (the saved audit) as the old one
+    then = {(r["start_months"], r["tenor_months"], r["regime"]): r["mean_error_bp"] for r in saved}
+    assert kinds["audit"]
+    for r in kinds["audit"]:
+        s, rest = r["item"].split("M x ")
+        m, regime = rest.split("M ")
+        want = then.get((int(s), int(m), regime))
+        if want is not None and r["old"]:
+            assert float(r["old"].split()[0]) == pytest.approx(want, abs=0.05)
+    table = run_cli("changes", "--since", t1, "--config", str(p.root / "afterward.toml"), cwd=p.root, timeout=300)
+    assert table.returncode == 0 and "changes since" in table.stdout
+    bad = run_cli("changes", "--since", "yesterday", "--config", str(p.root / "afterward.toml"), cwd=p.root)
+    assert bad.returncode == 2 and "not an ISO 8601 time" in bad.stderr and "Traceback" not in bad.stderr
