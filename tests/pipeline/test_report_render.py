@@ -392,3 +392,52 @@ def test_the_contenders_section_draws_the_comparison_and_the_model_premium() -> 
     assert result.scores["indicative"].any() and " *" in section
     empty = render_report(_data((_curve(),)))
     assert "No comparison stored yet" in empty
+
+
+def _judged_summary() -> pd.DataFrame:
+    """Four horizons with the fixed-b figures set by hand, one per judgement."""
+    return pd.DataFrame({
+        "curve": "alpha", "start_months": [0, 6, 12, 24, 60], "tenor_months": 12, "regime": "all",
+        "n": [500, 400, 380, 300, 100], "mean_error_bp": [0.0, 12.0, -30.0, 4.0, 80.0],
+        "hac_se_bp": [np.nan, 2.0, 5.0, 9.0, 30.0], "lags": [0, 125, 251, 503, 1259],
+        "rmse_bp": [0.0, 40.0, 60.0, 70.0, 120.0], "rw_rmse_bp": [0.0, 45.0, 50.0, 71.0, 110.0],
+        "rmse_ratio": [np.nan, 0.89, 1.2, 0.99, 1.09], "dm_stat": [np.nan, -2.5, 2.6, -0.4, np.nan],
+        "dm_pvalue": [np.nan, 0.01, 0.01, 0.7, np.nan], "dm_pvalue_fixed_b": [np.nan, 0.03, 0.04, 0.8, np.nan],
+        "hac_pvalue": [np.nan, 0.001, 0.02, 0.7, 0.2], "n_effective": [500.0, 3.2, 1.5, 0.6, 0.08],
+        "indicative": [False, True, True, True, True], "mz_beta": np.nan, "mz_pvalue": np.nan, "fb_beta": np.nan,
+        "hit_rate": np.nan, "verdict": "v", "first_as_of": pd.Timestamp("2030-01-01"),
+        "last_as_of": pd.Timestamp("2031-01-01")})
+
+
+def test_summary_judges_each_horizon_by_its_fixed_b_p_values() -> None:
+    from pipeline.report.summary import confidence_counts, horizon_verdicts
+
+    v = horizon_verdicts(_judged_summary())
+    assert v["start_months"].tolist() == [6, 12, 24, 60]  # 0M (the spot rate itself) left out
+    # DM < 0 with p < 5 %: better; DM > 0, p < 5 %: worse; p >= 5 %: even; no p: untested
+    assert v["against"].tolist() == ["better", "worse", "even", "untested"]
+    # the premium's sign counts only where the mean error's fixed-b p is below 5 %
+    assert v["premium"].tolist() == ["positive", "negative", "unclear", "unclear"]
+    mcs = pd.DataFrame({"start_months": [0, 6, 6, 12, 12], "tenor_months": 12,
+                        "contender": ["forward", "forward", "no_change", "forward", "no_change"],
+                        "mcs_p_value": [1.0, 1.0, 0.02, 0.3, 1.0], "included": [True, True, False, True, True]})
+    counts, cells = confidence_counts(mcs)
+    assert cells == 2 and counts.set_index("contender")["kept"].to_dict() == {"forward": 2, "no_change": 1}
+
+
+def test_summary_comes_first_with_its_words_and_the_overlap_caution() -> None:
+    from dataclasses import replace
+
+    c = replace(_curve(), summary=_judged_summary())
+    page = render_report(_data((c,)))
+    parsed = _parse(page)
+    assert parsed.errors == [] and parsed.stack == []
+    part = page[page.index('<section id="summary">'):page.index('<section id="scope">')]
+    assert page.index('<section id="summary">') < page.index('<section id="scope">')
+    assert "better at 1 of 4 horizons (6M\u00d71Y)" in part and "worse at 1 (1Y\u00d71Y)" in part
+    assert "no clear difference at 1" in part and "1 too short to test" in part
+    assert "positive at 1, negative at 1 horizons" in part
+    assert "from -30.0 bp (1Y\u00d71Y) to +80.0 bp (5Y\u00d71Y)" in part
+    assert "Strength of evidence: weak." in part and "4 of 4 horizons have fewer than 10" in part
+    assert "share most of their future" in part and "not investment advice" in part
+    assert "Not computed yet (run 'afterward compare')" in part
