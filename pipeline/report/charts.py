@@ -15,7 +15,8 @@ import matplotlib.dates as mdates
 import numpy as np
 import pandas as pd
 from matplotlib import colormaps
-from matplotlib.colors import LogNorm
+from matplotlib.cm import ScalarMappable
+from matplotlib.colors import ListedColormap, Normalize
 from matplotlib.patches import Patch
 
 from pipeline.report.fmt import months_label
@@ -43,6 +44,7 @@ HEAT_COLUMNS = 1600
 TENOR_COLOURS = [OKABE_ITO[k] for k in ("blue", "vermillion", "green", "purple", "orange", "sky", "black")]
 FORWARD, REALISED, NO_CHANGE = OKABE_ITO["vermillion"], OKABE_ITO["black"], OKABE_ITO["sky"]
 SHADE = OKABE_ITO["purple"]
+SEVERITY_FILL = {"reject": OKABE_ITO["vermillion"], "warn": OKABE_ITO["orange"], "info": OKABE_ITO["blue"]}
 PERIOD_WORD = {"day": "day", "week": "week", "month": "month", "quarter": "quarter", "year": "year"}
 
 
@@ -59,21 +61,30 @@ def _days(values: object) -> np.ndarray:
     return np.asarray(pd.to_datetime(pd.Series(values)).to_numpy().astype("datetime64[D]"))
 
 
-def _date_axis(ax, first: np.datetime64, last: np.datetime64) -> None:  # noqa: ANN001
-    """Year ticks for long spans, ISO months for shorter ones, ISO days for a few weeks."""
+def _date_axis(ax, first: np.datetime64, last: np.datetime64, width_in: float = WIDTH - 1.0) -> None:  # noqa: ANN001
+    """Year ticks for long spans, ISO months for shorter ones, ISO days for a few weeks.
+
+    ``width_in``: the axes' width in inches; the number of ticks is held to what fits there without
+    two labels touching (a "YYYY-MM" label at the tick font is about 0.45 in wide, a year 0.3 in, a
+    "YYYY-MM-DD" 0.65 in; a label's width again is left free between two).
+    """
     span = (last - first).astype("timedelta64[D]").astype(int)
     if span > 3 * 365:
+        fit = max(int(width_in / 0.5), 2)
         years = max(span / 365.25, 1.0)
-        base = next(b for b in (1, 2, 5, 10, 20, 50) if years / b <= 12)
+        base = next((b for b in (1, 2, 5, 10, 20, 50, 100) if years / b <= fit), 100)
         ax.xaxis.set_major_locator(mdates.YearLocator(base))
         ax.xaxis.set_major_formatter(mdates.DateFormatter("%Y"))
     elif span > 62:
+        fit = max(int(width_in / 0.65), 2)
         months = max(span / 30.4, 1.0)
-        step = next(s for s in (1, 2, 3, 6, 12) if months / s <= 10)
-        ax.xaxis.set_major_locator(mdates.MonthLocator(interval=step))
+        step = next((s for s in (1, 2, 3, 6, 12, 24) if months / s <= fit), 24)
+        ax.xaxis.set_major_locator(mdates.MonthLocator(bymonth=range(1, 13, step) if 12 % step == 0 else None,
+                                                       interval=1 if 12 % step == 0 else step))
         ax.xaxis.set_major_formatter(mdates.DateFormatter("%Y-%m"))
     else:
-        ax.xaxis.set_major_locator(mdates.AutoDateLocator(minticks=3, maxticks=8))
+        fit = max(int(width_in / 1.0), 2)
+        ax.xaxis.set_major_locator(mdates.AutoDateLocator(minticks=2, maxticks=min(8, fit)))
         ax.xaxis.set_major_formatter(mdates.DateFormatter("%Y-%m-%d"))
     pad = np.timedelta64(max(int(span * 0.01), 1), "D")
     ax.set_xlim(mdates.date2num(first - pad), mdates.date2num(last + pad))
@@ -118,16 +129,16 @@ def findings_chart(findings: pd.DataFrame, check_order: tuple[str, ...], first: 
     counts = np.zeros((len(rows), k1 - k0 + 1))
     np.add.at(counts, (frame["row"].to_numpy(), frame["col"].to_numpy()), 1)
     n_rows, n_cols = counts.shape
+    # colour says how serious (one reject outweighs many infos), the number says how many
+    level = rows["severity"].map({"info": 1, "warn": 2, "reject": 3}).fillna(1).to_numpy(dtype=float)
+    shade = np.where(counts > 0, level[:, None], 0.0)
+    fills = ["#ffffff", SEVERITY_FILL["info"], SEVERITY_FILL["warn"], SEVERITY_FILL["reject"]]
     title = f"Open findings by check and {period}"
     with chart_style():
-        fig = new_figure(WIDTH, 1.25 + 0.27 * n_rows)
+        fig = new_figure(WIDTH, 1.45 + 0.27 * n_rows)
         ax = fig.add_subplot()
-        cmap = colormaps["cividis_r"].copy()
-        cmap.set_bad("#ffffff")
-        masked = np.ma.masked_less(counts, 0.5)
-        vmax = max(float(counts.max()), 10.0)  # at least a decade, so the log scale has readable ticks
-        image = ax.imshow(masked, aspect="auto", interpolation="none", cmap=cmap, norm=LogNorm(1, vmax),
-                          extent=(-0.5, n_cols - 0.5, n_rows - 0.5, -0.5))
+        ax.imshow(shade, aspect="auto", interpolation="none", cmap=ListedColormap(fills), vmin=-0.5, vmax=3.5,
+                  extent=(-0.5, n_cols - 0.5, n_rows - 0.5, -0.5))
         ax.grid(False)
         ax.set_yticks(range(n_rows), [f"{c} \u00b7 {k} ({s})" for c, k, s in
                                       rows[["curve", "check", "severity"]].itertuples(index=False)])
@@ -141,17 +152,15 @@ def findings_chart(findings: pd.DataFrame, check_order: tuple[str, ...], first: 
         ax.tick_params(which="minor", length=0)
         ax.set_xlabel(f"{period.capitalize()} of the as-of date")
         ax.set_title(title)
-        if n_cols <= 40:
-            norm = image.norm
-            for r, c in zip(*np.nonzero(counts), strict=True):
-                shade = norm(counts[r, c])
-                ax.text(c, r, f"{int(counts[r, c]):,}", ha="center", va="center", fontsize=6.5,
-                        color="#ffffff" if shade > 0.55 else INK)
-        bar = fig.colorbar(image, ax=ax, pad=0.01, fraction=0.03)
-        bar.set_label(f"Findings per {period} (log scale)")
+        size = 6.5 if n_cols <= 40 else max(3.5, 6.5 * 40 / n_cols)
+        for r, c in zip(*np.nonzero(counts), strict=True):
+            ink = "#ffffff" if shade[r, c] in (1.0, 3.0) else INK
+            ax.text(c, r, f"{int(counts[r, c]):,}", ha="center", va="center", fontsize=size, color=ink)
+        ax.legend(handles=[Patch(facecolor=SEVERITY_FILL[k], label=k) for k in ("reject", "warn", "info")],
+                  title="Severity", loc="upper left", bbox_to_anchor=(1.0, 1.0))
         svg = figure_svg(fig, prefix, title)
-    caption = (f"Each cell counts the open findings of one check on as-of dates in that {period}; "
-               "a blank cell has none. Severity in brackets.")
+    caption = (f"The number in a cell counts the open findings of one check on as-of dates in that {period}; "
+               "its colour is the check's severity (reject, warn, info), whatever the count; a blank cell has none.")
     return Chart(svg, title, caption)
 
 
@@ -181,6 +190,31 @@ def _episode_spans(episodes: pd.DataFrame, pair: tuple[str, str] | None) -> list
     return list(zip(a.tolist(), (b - a).tolist(), strict=True))
 
 
+def _maturity_rows(tenors: list[str]) -> tuple[np.ndarray, np.ndarray]:
+    """(centre, edges) of each tenor's strip on a log10-years axis: centres at the maturities, edges
+    halfway between neighbours (half a gap beyond the first and the last)."""
+    y = np.log10(np.array([parse_tenor(t).approx_days / 365.25 for t in tenors]))
+    if y.size == 1:
+        return y, np.array([y[0] - 0.5, y[0] + 0.5])
+    mid = (y[1:] + y[:-1]) / 2
+    return y, np.r_[y[0] - (y[1] - y[0]) / 2, mid, y[-1] + (y[-1] - y[-2]) / 2]
+
+
+def _spaced(y: np.ndarray, min_gap: float) -> list[int]:
+    """Positions of ``y`` (ascending) to label: the first, then each at least ``min_gap`` above the last
+    kept, the longest always (dropping its neighbour instead when the two are too close)."""
+    kept = [0]
+    for j in range(1, len(y)):
+        if y[j] - y[kept[-1]] >= min_gap:
+            kept.append(j)
+    last = len(y) - 1
+    if kept[-1] != last:
+        if len(kept) > 1 and y[last] - y[kept[-1]] < min_gap:
+            kept.pop()
+        kept.append(last)
+    return kept
+
+
 def history_chart(curve: CurveReport, prefix: str) -> Chart | None:
     """A heatmap of the curve (tenor x date, colour = rate in %) over a few tenors as lines, with the
     inversion episodes of ``curve.inversion_pair`` shaded in the lower panel."""
@@ -188,6 +222,7 @@ def history_chart(curve: CurveReport, prefix: str) -> Chart | None:
     if h.empty:
         return None
     tenors = [t for t in curve.tenors if t in set(h["tenor"].astype(str))] or sorted(set(h["tenor"].astype(str)))
+    tenors = sorted(tenors, key=lambda t: parse_tenor(t).approx_days)
     frame = pd.DataFrame({"as_of": _days(h["as_of"]), "tenor": h["tenor"].astype(str).to_numpy(),
                           "rate": h["rate"].to_numpy(dtype=float)})
     frame = frame[frame["tenor"].isin(tenors)]
@@ -214,13 +249,24 @@ def history_chart(curve: CurveReport, prefix: str) -> Chart | None:
         top, bottom = fig.subplots(2, 1, sharex=True, height_ratios=[1.15, 1.0])
         cmap = colormaps["cividis"].copy()
         cmap.set_bad("#ebe8e2")
-        image = top.imshow(mat, aspect="auto", interpolation="none", cmap=cmap, origin="lower",
-                           extent=(x0, x1, -0.5, len(tenors) - 0.5))
+        finite = mat[np.isfinite(mat)]
+        norm = Normalize(float(finite.min()), float(finite.max())) if finite.size else Normalize(0.0, 1.0)
+        # each tenor is a strip placed at its maturity (log years), so 10Y to 30Y looks as far as it is
+        y, edges = _maturity_rows(tenors)
+        seam = 0.004 * (edges[-1] - edges[0])  # each strip runs under the next: no hairline gap between
+        for j in range(len(tenors)):
+            top.imshow(mat[j:j + 1], aspect="auto", interpolation="none", cmap=cmap, norm=norm, origin="lower",
+                       extent=(x0, x1, edges[j], edges[j + 1] + (seam if j + 1 < len(tenors) else 0.0)))
+        top.set_xlim(x0, x1)
+        top.set_ylim(edges[0], edges[-1])
         top.grid(False)
-        top.set_yticks(range(len(tenors)), tenors)
-        top.set_ylabel("Tenor")
+        shown = _spaced(y, min_gap=0.055 * (edges[-1] - edges[0]))
+        top.set_yticks(y[shown], [tenors[j] for j in shown])
+        top.set_yticks(y, minor=True)
+        top.tick_params(axis="y", which="minor", length=2)
+        top.set_ylabel("Tenor (by maturity, log scale)")
         top.set_title(title)
-        bar = fig.colorbar(image, ax=top, pad=0.01, fraction=0.03)
+        bar = fig.colorbar(ScalarMappable(norm=norm, cmap=cmap), ax=top, pad=0.01, fraction=0.03)
         bar.set_label("Rate (%)")
         handles = []
         for colour, tenor in zip(TENOR_COLOURS, _line_tenors(tuple(tenors)), strict=False):
@@ -240,7 +286,8 @@ def history_chart(curve: CurveReport, prefix: str) -> Chart | None:
                       fontsize=7.5, borderaxespad=0.2)
         _date_axis(bottom, first, last)
         svg = figure_svg(fig, prefix, title)
-    caption = (f"Upper panel: {_thinned_note(heat_period)}; grey cells: no curve. Lower panel: "
+    caption = (f"Upper panel: {_thinned_note(heat_period)}; each tenor's strip sits at its maturity on a log "
+               "scale (every quoted tenor has a minor tick); grey cells: no curve. Lower panel: "
                f"{_thinned_note(line_period)}"
                + (f"; shaded: days the {curve.inversion_pair[0]} quote was above the {curve.inversion_pair[1]} "
                   "quote (inversion episodes)." if spans else "."))
@@ -410,7 +457,7 @@ def premium_chart(curve: CurveReport, prefix: str) -> Chart | None:
                 ax.set_ylabel("Premium (bp)")
             if i >= len(starts) - cols:
                 ax.set_xlabel("As-of date (end of window)")
-            _date_axis(ax, first, last)
+            _date_axis(ax, first, last, WIDTH / cols - 0.5)
             ax.tick_params(axis="x", labelbottom=True)
             if i == 0:
                 handles = [ln, band]

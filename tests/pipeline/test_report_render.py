@@ -352,12 +352,12 @@ def test_long_history_is_thinned_to_weeks() -> None:
     chart = charts.history_chart(CurveReport(name="long", tenors=tenors, history=history), "t")
     assert chart is not None and "one point per week" in chart.caption
     assert len(chart.svg.encode()) < 600_000
-    # the heatmap is one embedded PNG, a pixel per tenor and week (weeks as pandas counts them, W-SUN)
+    # the heatmap is one embedded PNG strip per tenor, a pixel per week (weeks as pandas counts them, W-SUN)
     pngs = re.findall(r'data:image/png;base64,([A-Za-z0-9+/=\s]+)"', chart.svg)
-    assert len(pngs) == 2  # the heatmap and its colour bar
-    sizes = {Image.open(io.BytesIO(base64.b64decode(re.sub(r"\s", "", b)))).size for b in pngs}
+    assert len(pngs) == len(tenors) + 1  # the strips and the colour bar
+    sizes = [Image.open(io.BytesIO(base64.b64decode(re.sub(r"\s", "", b)))).size for b in pngs]
     weeks = pd.DatetimeIndex(days).to_period("W-SUN").nunique()
-    assert (weeks, len(tenors)) in sizes
+    assert sizes.count((weeks, 1)) == len(tenors)
 
 
 def test_the_contenders_section_draws_the_comparison_and_the_model_premium() -> None:
@@ -441,3 +441,67 @@ def test_summary_comes_first_with_its_words_and_the_overlap_caution() -> None:
     assert "Strength of evidence: weak." in part and "4 of 4 horizons have fewer than 10" in part
     assert "share most of their future" in part and "not investment advice" in part
     assert "Not computed yet (run 'afterward compare')" in part
+
+
+def test_tenor_strips_sit_at_their_maturity() -> None:
+    from pipeline.report.charts import _maturity_rows
+
+    # 1Y, 2Y, 4Y, 8Y: equal steps of log10(2) on the axis; edges halfway, half a step beyond the ends
+    # (by hand); approx_days / 365.25 is the year count the tenor parser gives
+    centre, edges = _maturity_rows(["1Y", "2Y", "4Y", "8Y"])
+    step = np.log10(2.0)
+    assert np.allclose(np.diff(centre), step, atol=2e-3)
+    assert np.allclose(edges[1:-1], (centre[1:] + centre[:-1]) / 2)
+    assert np.isclose(centre[0] - edges[0], np.diff(centre)[0] / 2) and np.isclose(edges[-1] - centre[-1],
+                                                                                   np.diff(centre)[-1] / 2)
+    # 10Y to 30Y is drawn farther apart than 5Y to 7Y, unlike rows of equal height
+    c2, _ = _maturity_rows(["5Y", "7Y", "10Y", "30Y"])
+    assert c2[3] - c2[2] > 2 * (c2[1] - c2[0])
+
+
+def _png_colours(svg: str) -> set[tuple[int, int, int]]:
+    out: set[tuple[int, int, int]] = set()
+    for b in re.findall(r'data:image/png;base64,([A-Za-z0-9+/=\s]+)"', svg):
+        img = Image.open(io.BytesIO(base64.b64decode(re.sub(r"\s", "", b)))).convert("RGB")
+        out |= {tuple(int(v) for v in px) for px in np.asarray(img).reshape(-1, 3)}
+    return out
+
+
+def test_findings_are_coloured_by_severity_and_counted_in_words() -> None:
+    from pipeline.report.svg import OKABE_ITO
+
+    f = pd.DataFrame({"curve": "alpha", "as_of": pd.to_datetime(["2030-03-04"] + ["2030-05-06"] * 45),
+                      "check_name": ["jump"] + ["inversion"] * 45, "severity": ["reject"] + ["info"] * 45})
+    chart = charts.findings_chart(f, ("jump", "inversion"), pd.Timestamp("2030-01-01"), pd.Timestamp("2030-12-31"),
+                                  "fq")
+
+    def rgb(h: str) -> tuple[int, int, int]:
+        return tuple(int(h[i:i + 2], 16) for i in (1, 3, 5))
+    # one reject and 45 infos: the reject's cell is the full reject colour, the infos' the info colour
+    assert _png_colours(chart.svg) == {(255, 255, 255), rgb(OKABE_ITO["vermillion"]), rgb(OKABE_ITO["blue"])}
+    assert "whatever the count" in chart.caption
+
+
+@pytest.mark.parametrize(("first", "last", "width"), [("2022-01-03", "2023-09-29", 9.6 / 3 - 0.5),
+                                                       ("2022-01-03", "2022-03-15", 9.6 / 3 - 0.5),
+                                                       ("1996-01-02", "2025-12-31", 9.6 / 3 - 0.5),
+                                                       ("2019-01-02", "2025-12-31", 8.6)],
+                         ids=["21-months-panel", "10-weeks-panel", "30-years-panel", "7-years-wide"])
+def test_date_labels_never_overlap(first: str, last: str, width: float) -> None:
+    from pipeline.report.charts import _date_axis
+
+    with chart_style():
+        fig = new_figure(width + 0.6, 1.6)
+        ax = fig.add_subplot()
+        a, b = np.datetime64(first), np.datetime64(last)
+        ax.plot([a, b], [0, 1])
+        _date_axis(ax, a, b, width)
+        from matplotlib.backends.backend_agg import FigureCanvasAgg
+
+        canvas = FigureCanvasAgg(fig)  # measures the text as the SVG's glyph outlines are drawn (same font)
+        canvas.draw()
+        renderer = canvas.get_renderer()
+        boxes = sorted((t.get_window_extent(renderer) for t in ax.get_xticklabels() if t.get_text()
+                        and ax.get_xlim()[0] <= t.get_position()[0] <= ax.get_xlim()[1]), key=lambda e: e.x0)
+    assert len(boxes) >= 2
+    assert all(lt.x1 < rt.x0 for lt, rt in zip(boxes, boxes[1:], strict=False)), [(e.x0, e.x1) for e in boxes]
