@@ -39,7 +39,7 @@ from PIL import Image
 
 from flows.audit_step import run_audit
 from flows.build_step import run_build
-from flows.check_step import run_checks
+from flows.check_step import accept_day, run_checks
 from flows.load_step import load_files
 from flows.realize_step import run_realize
 from flows.report_step import write_report
@@ -71,7 +71,13 @@ def demo_store(tmp_path_factory: pytest.TempPathFactory) -> Path:
             paths.append(cfg.inbox / name)
     load_files(cfg, sorted(paths))
     run_checks(cfg)
+    # one override and one what-if build, so the overrides section has something of each to list
+    with duckdb.connect(str(cfg.store_path), read_only=True) as con:
+        curve, day = con.execute("SELECT curve, CAST(min(as_of) AS VARCHAR) FROM open_findings WHERE severity = "
+                                 "'reject' GROUP BY curve ORDER BY curve LIMIT 1").fetchone()
+    assert accept_day(cfg, curve, day, "level confirmed against the source file") > 0
     run_build(cfg)
+    run_build(cfg, "swap", "2002-01-01", "2002-02-28", method="nss")
     run_realize(cfg)
     run_audit(cfg)
     return root / "afterward.toml"
@@ -159,6 +165,23 @@ def test_report_numbers_match_a_plain_recomputation(demo_store: Path, report: Pa
     # the bias p is the fixed-b p of the stored HAC t (pipeline.audit.fixed_b, its own tests hold it)
     p = pvalue_two_sided(hac_t, n, h)
     assert cells[7] == ("&lt; 0.001" if p < 0.001 else f"{p:.3f}")
+
+
+def test_report_lists_the_store_s_acceptances_and_what_if_builds(demo_store: Path, report: Path) -> None:
+    text = report.read_text(encoding="utf-8")
+    part = text[text.index('<section id="overrides">'):text.index('<section id="cautions">')]
+    with _store(demo_store) as con:
+        acc = con.execute("SELECT curve, as_of, accepted_by, reason FROM acceptance_in_force").fetchall()
+        whatif = con.execute("SELECT scenario, count(DISTINCT as_of), min(as_of), max(as_of) FROM forward_built "
+                             "WHERE scenario <> 'official' GROUP BY scenario").fetchall()
+    assert len(acc) == 1 and len(whatif) == 1
+    curve, day, who, reason = acc[0]
+    assert re.search(rf"<td>{curve}</td><td class=\"n\">{day:%Y-%m-%d}</td><td>[^<]*reject[^<]*</td><td>{who}</td>",
+                     part)
+    assert f"<td>{reason}</td><td>in force</td>" in part
+    scenario, days, lo, hi = whatif[0]
+    assert (f'<td>{scenario}</td><td>nss</td>' in part and f'<td class="n">{days:,}</td><td class="n">{lo:%Y-%m-%d}'
+            f'</td><td class="n">{hi:%Y-%m-%d}</td>' in part)
 
 
 def test_cli_writes_the_report_beside_the_config(demo_store: Path) -> None:

@@ -505,3 +505,32 @@ def test_date_labels_never_overlap(first: str, last: str, width: float) -> None:
                         and ax.get_xlim()[0] <= t.get_position()[0] <= ax.get_xlim()[1]), key=lambda e: e.x0)
     assert len(boxes) >= 2
     assert all(lt.x1 < rt.x0 for lt, rt in zip(boxes, boxes[1:], strict=False)), [(e.x0, e.x1) for e in boxes]
+
+
+def test_overrides_list_every_acceptance_and_what_if_build_and_a_sign_off_block() -> None:
+    from dataclasses import replace
+
+    acc = pd.DataFrame({"curve": ["alpha", "alpha"], "as_of": pd.to_datetime(["2030-03-04", "2030-06-07"]),
+                        "accepted_by": ["r.ames", "k.lund"],
+                        "accepted_at": pd.to_datetime(["2031-01-10 08:15", "2031-02-11 16:40"]),
+                        "reason": ["source confirmed <by phone>", None], "in_force": [True, False],
+                        "findings": ["jump (reject, 3M)", None]})
+    whatif = pd.DataFrame({"curve": ["alpha"], "scenario": ["what-if:nss"], "method": ["nss"],
+                           "code_version": ["afterward 9.9"], "days": [63], "first_day": [date(2030, 1, 2)],
+                           "last_day": [date(2030, 3, 29)], "built_at": [pd.Timestamp("2031-03-01 12:00")]})
+    page = render_report(replace(_data((_curve(),)), acceptances=acc, scenarios=whatif))
+    parsed = _parse(page)
+    assert parsed.errors == [] and parsed.stack == []
+    part = page[page.index('<section id="overrides">'):page.index('<section id="cautions">')]
+    assert re.search(r'<td>alpha</td><td class="n">2030-03-04</td><td>jump \(reject, 3M\)</td><td>r.ames</td>'
+                     r'<td class="n">2031-01-10 08:15</td><td>source confirmed &lt;by phone&gt;</td><td>in force</td>',
+                     part)
+    assert "(no reason given)" in part and "lapsed: the day&#x27;s quotes changed since" in part
+    assert "2 acceptance(s), 1 lapsed" in part
+    assert "<td>what-if:nss</td><td>nss</td><td>afterward 9.9</td><td class=\"n\">63</td>" in part
+    sign = page[page.index('<section id="signoff">'):]
+    for role in ("Prepared by", "Reviewed by"):
+        assert f'<th scope="row">{role}</th><td></td><td></td><td></td>' in sign
+    assert "<th>Date</th>" in sign
+    bare = render_report(_data((_curve(),)))
+    assert "No day&#x27;s findings have been accepted" in bare and "No what-if build" in bare
