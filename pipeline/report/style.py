@@ -121,12 +121,34 @@ table.signoff td:nth-child(2), table.signoff td:nth-child(3) { width: 30%; }
 .remarks { margin-top: 16px; height: 140px; border: 1px solid var(--ink); padding: 6px 10px; }
 .remarks p { margin: 0; font-size: 11px; letter-spacing: .09em; text-transform: uppercase; color: var(--muted); }
 @media (max-width: 760px) { .sheet { padding: 0 18px 30px; border-left-width: 3px; } nav.contents ol { columns: 1; } }
+@page { size: A4; margin: 14mm 12mm 16mm; }
 @media print {
   html { background: #fff; }
+  html, body { -webkit-print-color-adjust: exact; print-color-adjust: exact; }
+  body { font-size: 10pt; }
   .sheet { max-width: none; padding: 0; border: 0; box-shadow: none; }
   nav.contents { display: none; }
   section { break-before: page; margin-top: 0; }
-  figure.chart, tr { break-inside: avoid; }
+  h2 { border-top: 0; padding-top: 0; font-size: 20pt; }
+  h2, h3, h4, caption, .intro { break-after: avoid; }
+  figure.chart, figcaption, tr, .sumcurve, table.signoff, .remarks, .note { break-inside: avoid; }
+  figure.chart { margin: 8px 0 14px; }
+  tr.has-verdict { break-after: avoid; }
+  .table-wrap { overflow: visible; }
+  table { font-size: 8.5pt; }
+  table.results { font-size: 7pt; }
+  table.results th, table.results td { padding: 2px 3px; }
+  th { font-size: 7pt; }
+  tbody tr:hover td { background: none; }
+  /* a closed <details> prints open: its content is part of the record */
+  details::details-content { content-visibility: visible; display: block; }
   details > * { display: block; }
+  details > summary { list-style: none; color: var(--ink); font-weight: 650; }
+  details > summary::-webkit-details-marker { display: none; }
+  .mono, code { font-size: 7.5pt; }
+  td .mono { font-size: 6pt; }
+  td { white-space: nowrap; }
+  td:last-child:not(.n), table.results td:not(.n), table.settings td, table.signoff td { white-space: normal; }
+  .sumgrid { grid-template-columns: 1fr; }
 }
 """

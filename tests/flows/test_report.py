@@ -30,6 +30,8 @@ import select
 import shutil
 import subprocess
 import time
+import unicodedata
+from html.parser import HTMLParser
 from pathlib import Path
 
 import duckdb
@@ -430,3 +432,104 @@ def test_report_renders_in_headless_chromium(report: Path, tmp_path: Path) -> No
                and any(not loopback.match(a) for a in [p.get("address", "")] + p.get("address_list", []) if a)]
     assert reached == [], reached
 
+
+
+# ---- the page printed -------------------------------------------------------------------------------
+
+class _Printed(HTMLParser):
+    """What a printed copy must hold: every heading, details summary and table caption, each table's first
+    header cell, and the first cell of the last row of each table inside a collapsed <details>."""
+
+    WATCH = ("h2", "h3", "h4", "caption", "summary")
+
+    def __init__(self) -> None:
+        super().__init__(convert_charrefs=True)
+        self.texts: list[str] = []
+        self._open: list[list] = []  # [tag, text parts]
+        self._details = 0
+        self._first_th: bool = False
+        self._row: list[str] = []
+        self._cell: list[str] | None = None
+        self.hidden_last_rows: list[str] = []
+        self._secno = False
+
+    def handle_starttag(self, tag: str, attrs: list) -> None:
+        if tag in self.WATCH:
+            self._open.append([tag, []])
+        if tag == "span" and ("class", "secno") in attrs:
+            self._secno = True
+        if tag == "details":
+            self._details += 1
+        if tag == "table":
+            self._first_th = True
+            self._last_row: list[str] = []
+        if tag == "th" and self._first_th:
+            self._open.append(["th", []])
+        if tag == "tr":
+            self._row = []
+        if tag == "td":
+            self._cell = []
+
+    def handle_endtag(self, tag: str) -> None:
+        if tag == "span" and self._secno:
+            self._secno = False
+        if self._open and self._open[-1][0] == tag:
+            _, parts = self._open.pop()
+            text = "".join(parts).strip()
+            if text:
+                self.texts.append(text)
+            if tag == "th":
+                self._first_th = False
+        if tag == "td" and self._cell is not None:
+            self._row.append("".join(self._cell).strip())
+            self._cell = None
+        if tag == "tr" and self._row:
+            self._last_row = self._row
+        if tag == "table" and self._details and self._last_row:
+            self.hidden_last_rows.append(self._last_row[0])
+        if tag == "details":
+            self._details -= 1
+
+    def handle_data(self, data: str) -> None:
+        if self._secno:
+            return
+        for _, parts in self._open:
+            parts.append(data)
+        if self._cell is not None:
+            self._cell.append(data)
+
+
+def _squeeze(text: str) -> str:
+    """Case, spacing and line breaks dropped (print wraps lines, letter-spacing splits words, CSS
+    upper-cases headings), ligatures split (NFKC): what is left is the words' letters in order."""
+    return re.sub(r"\s+", "", unicodedata.normalize("NFKC", text)).lower()
+
+
+def test_report_prints_every_section_and_table(report: Path, tmp_path: Path) -> None:
+    if not os.access(CHROMIUM, os.X_OK) or shutil.which("pdftotext") is None:
+        pytest.fail("the print test needs Debian's chromium and poppler-utils (pdftotext): run "
+                    ".ci/install-chromium.sh")
+    pdf = tmp_path / "report.pdf"
+    done = subprocess.run([*_network_namespace(), CHROMIUM, "--headless", "--no-sandbox", "--disable-gpu",
+                           "--no-first-run", "--disable-background-networking", "--disable-component-update",
+                           f"--user-data-dir={tmp_path / 'profile'}", "--no-pdf-header-footer",
+                           f"--print-to-pdf={pdf}", report.as_uri()], capture_output=True, text=True, timeout=300)
+    assert pdf.is_file() and pdf.stat().st_size > 0, done.stderr[-2000:]
+    printed = _squeeze(subprocess.run(["pdftotext", "-raw", str(pdf), "-"], capture_output=True, text=True,
+                                      check=True).stdout)
+    page = _Printed()
+    page.feed(report.read_text(encoding="utf-8"))
+    for _, heading in SECTIONS:
+        assert _squeeze(heading) in printed, heading
+    assert len(page.texts) > 40
+    missing = [t for t in page.texts if _squeeze(t) not in printed]
+    assert missing == []
+    # the tables of collapsed <details> print in full: the last row of each is on paper
+    assert page.hidden_last_rows
+    assert [c for c in page.hidden_last_rows if _squeeze(c) not in printed] == []
+    # each section starts a page: its heading opens a page of the PDF
+    pages = subprocess.run(["pdftotext", "-raw", str(pdf), "-"], capture_output=True, text=True,
+                           check=True).stdout.split("\f")
+    openers = [_squeeze(p)[:120] for p in pages]
+    for _, heading in SECTIONS:
+        assert any(_squeeze(heading) in o for o in openers), heading
