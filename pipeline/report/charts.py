@@ -17,6 +17,7 @@ import pandas as pd
 from matplotlib import colormaps
 from matplotlib.cm import ScalarMappable
 from matplotlib.colors import ListedColormap, Normalize
+from matplotlib.lines import Line2D
 from matplotlib.patches import Patch
 
 from pipeline.report.fmt import months_label
@@ -29,12 +30,15 @@ __all__ = [
     "Chart",
     "contender_rmse_chart",
     "error_chart",
+    "error_time_chart",
     "findings_chart",
     "forwards_chart",
     "history_chart",
     "model_premium_chart",
     "premium_chart",
+    "premium_regime_chart",
     "rmse_chart",
+    "spreads_chart",
 ]
 
 WIDTH = 9.6  # inches; 72 pt each, scaled to the page width by the browser
@@ -535,4 +539,151 @@ def contender_rmse_chart(curve: CurveReport, prefix: str) -> Chart | None:
         svg = figure_svg(fig, prefix, title)
     caption = ("Lower is better. Each cell's contenders are scored on the as-of days all of them have an "
                "outcome, so the points of one horizon compare like with like.")
+    return Chart(svg, title, caption)
+
+
+# ---- charts reviewers look for --------------------------------------------------------------------
+
+REGIME_STYLE = {"normal": (OKABE_ITO["blue"], "o"), "inverted": (OKABE_ITO["vermillion"], "s"),
+                "all": (OKABE_ITO["black"], "D")}
+
+
+def _shade(ax, spans: list[tuple[float, float]]) -> None:  # noqa: ANN001
+    if spans:
+        ax.broken_barh(spans, (0, 1), transform=ax.get_xaxis_transform(), facecolor=SHADE, alpha=0.22, linewidth=0)
+
+
+def spreads_chart(curve: CurveReport, prefix: str) -> Chart | None:
+    """The spread (long minus short, bp) of every configured inversion pair over time, one panel per
+    pair, each with its own inversion episodes shaded."""
+    sp = curve.spreads
+    if sp is None or sp.empty:
+        return None
+    pairs = [p for p in (curve.all_pairs or tuple(dict.fromkeys(zip(sp["short_tenor"], sp["long_tenor"],
+                                                                     strict=True))))
+             if ((sp["short_tenor"] == p[0]) & (sp["long_tenor"] == p[1])).any()]
+    if not pairs:
+        return None
+    days = _days(sp["as_of"])
+    first, last = days.min(), days.max()
+    period = choose_period(np.unique(days), LINE_POINTS)
+    title = f"{curve.name}: the spread of each inversion pair"
+    with chart_style():
+        fig = new_figure(WIDTH, 0.9 + 1.8 * len(pairs))
+        axes = np.atleast_1d(fig.subplots(len(pairs), 1, sharex=True, squeeze=False)).ravel()
+        for ax, (short, long) in zip(axes, pairs, strict=True):
+            part = sp[(sp["short_tenor"] == short) & (sp["long_tenor"] == long)]
+            part = thin_frame(part.assign(as_of=_days(part["as_of"])), "as_of", period)
+            _shade(ax, _episode_spans(curve.episodes, (short, long)))
+            ax.axhline(0.0, color=MUTED, linewidth=0.7)
+            ax.plot(part["as_of"].to_numpy(), part["spread_bp"].to_numpy(dtype=float), color=OKABE_ITO["blue"],
+                    linewidth=0.9)
+            ax.set_title(f"{long} minus {short}", fontsize=8.5)
+            ax.set_ylabel("Spread (bp)")
+        axes[-1].set_xlabel("As-of date")
+        _date_axis(axes[-1], first, last)
+        fig.legend(handles=[Patch(facecolor=SHADE, alpha=0.22, label="inverted (episode)")], loc="upper right",
+                   bbox_to_anchor=(1.0, 1.0))
+        fig.suptitle(title, x=0.01, ha="left", color=INK)
+        svg = figure_svg(fig, prefix, title)
+    caption = (f"Long minus short quote, as the inversion check compares them; {_thinned_note(period)}. Shaded: "
+               "that pair's inversion episodes (runs of days with the short quote above the long one).")
+    return Chart(svg, title, caption)
+
+
+def error_time_chart(curve: CurveReport, prefix: str) -> Chart | None:
+    """The forecast error (forward minus realised, bp) of the ``curve.premium_tenor`` forwards by as-of
+    date, one panel per start, with the inversion episodes of ``curve.inversion_pair`` shaded."""
+    e = curve.errors
+    if e is None or e.empty:
+        return None
+    e = e[e["start_months"] > 0]
+    if e.empty:
+        return None
+    starts = sorted(e["start_months"].unique())
+    cols = min(3, len(starts))
+    rows = int(np.ceil(len(starts) / cols))
+    as_of = _days(e["as_of"])
+    first, last = as_of.min(), as_of.max()
+    period = choose_period(np.unique(as_of), PANEL_POINTS)
+    spans = _episode_spans(curve.episodes, curve.inversion_pair)
+    tenor = months_label(curve.premium_tenor) if curve.premium_tenor else months_label(e["tenor_months"].iloc[0])
+    title = f"{curve.name}: forecast error of the {tenor} forward over time, by start"
+    with chart_style():
+        fig = new_figure(WIDTH, 0.7 + 2.0 * rows)
+        axes = np.atleast_1d(fig.subplots(rows, cols, sharex=True, sharey=True, squeeze=False)).ravel()
+        for i, ax in enumerate(axes):
+            if i >= len(starts):
+                ax.set_visible(False)
+                continue
+            st = starts[i]
+            part = e[e["start_months"] == st].assign(as_of=lambda f: _days(f["as_of"]))
+            part = thin_frame(part, "as_of", period)
+            _shade(ax, spans)
+            ax.axhline(0.0, color=MUTED, linewidth=0.7)
+            ax.plot(part["as_of"].to_numpy(), part["error_bp"].to_numpy(dtype=float), color=FORWARD, linewidth=0.9)
+            ax.set_title(f"{months_label(st)} ahead", fontsize=8.5)
+            if i % cols == 0:
+                ax.set_ylabel("Error (bp)")
+            if i >= len(starts) - cols:
+                ax.set_xlabel("As-of date")
+            _date_axis(ax, first, last, WIDTH / cols - 0.5)
+            ax.tick_params(axis="x", labelbottom=True)
+        handles = [Line2D([], [], color=FORWARD, linewidth=0.9, label="forward \u2212 realised")]
+        if spans:
+            handles.append(Patch(facecolor=SHADE, alpha=0.22,
+                                 label=f"{curve.inversion_pair[0]}\u2013{curve.inversion_pair[1]} inverted"))
+        fig.legend(handles=handles, loc="upper right", ncols=2, bbox_to_anchor=(1.0, 1.0))
+        fig.suptitle(title, x=0.01, ha="left", color=INK)
+        svg = figure_svg(fig, prefix, title)
+    caption = (f"Each line is the error of the forward made on that as-of date, once its target date came; "
+               f"{_thinned_note(period)}. Above zero: the forward was higher than what happened. Shaded: the "
+               "curve's inversion episodes on the as-of date. Panels share the vertical scale.")
+    return Chart(svg, title, caption)
+
+
+def premium_regime_chart(curve: CurveReport, prefix: str) -> Chart | None:
+    """The mean error (the ex-post premium, bp) by start for normal and inverted curves on the as-of
+    date (and all days), with the HAC 95 % interval, one panel per tenor."""
+    s = curve.summary
+    if s is None or s.empty or "regime" not in s:
+        return None
+    s = s[(s["start_months"] > 0) & s["regime"].isin(list(REGIME_STYLE))]
+    if not (s["regime"] != "all").any():
+        return None
+    tenors = sorted(s["tenor_months"].unique())
+    starts = sorted(s["start_months"].unique())
+    pos = {st: i for i, st in enumerate(starts)}
+    regimes = [r for r in ("normal", "inverted", "all") if (s["regime"] == r).any()]
+    width = 0.6 / max(len(regimes), 1)
+    title = f"{curve.name}: term premium (mean error) by regime and horizon, with HAC 95 % interval"
+    with chart_style():
+        fig = new_figure(WIDTH, 3.1)
+        axes = np.atleast_1d(fig.subplots(1, len(tenors), sharey=True))
+        for i, (ax, t) in enumerate(zip(axes, tenors, strict=True)):
+            ax.axhline(0.0, color=MUTED, linewidth=0.7)
+            for j, regime in enumerate(regimes):
+                part = s[(s["tenor_months"] == t) & (s["regime"] == regime)].sort_values("start_months")
+                if part.empty:
+                    continue
+                colour, marker = REGIME_STYLE[regime]
+                x = np.array([pos[v] for v in part["start_months"]]) + (j - (len(regimes) - 1) / 2) * width
+                mean = part["mean_error_bp"].to_numpy(dtype=float)
+                se = part["hac_se_bp"].to_numpy(dtype=float) if "hac_se_bp" in part else np.full(mean.shape, np.nan)
+                ax.errorbar(x, mean, yerr=np.where(np.isfinite(se), 1.96 * se, 0.0), fmt=marker, color=colour,
+                            markersize=3.2, capsize=2, elinewidth=0.9,
+                            label={"all": "all days"}.get(regime, f"{regime} curve"))
+            ax.set_xticks(range(len(starts)), [months_label(v) for v in starts], fontsize=7)
+            ax.set_title(f"{months_label(t)} tenor", fontsize=8.5)
+            ax.set_xlabel("Forward start")
+            if i == 0:
+                ax.set_ylabel("Mean error (bp)")
+        handles, labels = axes[0].get_legend_handles_labels()
+        axes[-1].legend(handles, labels, loc="upper left", bbox_to_anchor=(1.0, 1.0), title="On the as-of date")
+        fig.suptitle(title, x=0.01, ha="left", color=INK)
+        svg = figure_svg(fig, prefix, title)
+    caption = ("Mean of forward minus realised rate over the outcomes of each regime (the curve inverted or "
+               "normal at the first inversion pair on the day the forward was made); bars: \u00b1 1.96 Newey-West "
+               "standard errors. Inverted periods are short: their intervals are wide and rest on few "
+               "independent outcomes.")
     return Chart(svg, title, caption)

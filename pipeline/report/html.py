@@ -496,8 +496,10 @@ def _per_curve(curves: Sequence[CurveReport], index: str, intro: str,
 
 
 def _history_body(c: CurveReport, i: int) -> str:
-    return _figure(charts.history_chart(c, f"h{i}"), f"fig-history-{i}",
-                   "No curve has been built for this curve yet (run 'afterward build').")
+    return (_figure(charts.history_chart(c, f"h{i}"), f"fig-history-{i}",
+                    "No curve has been built for this curve yet (run 'afterward build').")
+            + _figure(charts.spreads_chart(c, f"s{i}"), f"fig-spreads-{i}",
+                      "No inversion pair is configured, or its tenors are not quoted."))
 
 
 def _summary_rows(c: CurveReport, regime: str = "all") -> pd.DataFrame:
@@ -540,6 +542,8 @@ def _errors_body(c: CurveReport, i: int) -> str:
     out.append(_figure(charts.error_chart(c, f"e{i}"), f"fig-errors-{i}",
                        "No audit figures yet (run 'afterward realize' and 'afterward audit')."))
     out.append(_figure(charts.rmse_chart(c, f"r{i}"), f"fig-rmse-{i}", "No audit figures yet."))
+    out.append(_figure(charts.error_time_chart(c, f"t{i}"), f"fig-error-time-{i}",
+                       "No forward of the charted tenor has reached its target date yet."))
     s = _summary_rows(c)
     if s.empty:
         return "".join(out)
@@ -603,7 +607,9 @@ def _errors_body(c: CurveReport, i: int) -> str:
 
 def _premium_body(c: CurveReport, i: int) -> str:
     out = [_figure(charts.premium_chart(c, f"p{i}"), f"fig-premium-{i}",
-                   "Not enough outcomes yet for a trailing-window premium.")]
+                   "Not enough outcomes yet for a trailing-window premium."),
+           _figure(charts.premium_regime_chart(c, f"g{i}"), f"fig-premium-regime-{i}",
+                   "No audit figures by regime yet.")]
     p = c.premium
     if p is not None and not p.empty:
         p = p[p["start_months"] > 0]

@@ -327,6 +327,7 @@ PAGE_FACTS = """JSON.stringify((() => {
                       return {x: b.left + scrollX, y: b.top + scrollY, w: b.width, h: b.height}; };
   return {
     headings: [...document.querySelectorAll('h2')].map(h => h.textContent.trim()),
+    subheadings: [...document.querySelectorAll('h3, h4')].map(h => h.textContent.trim()),
     charts: [...document.querySelectorAll('figure.chart')].map(f => ({id: f.id, box: box(f.querySelector('svg'))})),
     svgs: document.querySelectorAll('svg').length,
     width: document.documentElement.scrollWidth,
@@ -400,10 +401,17 @@ def test_report_renders_in_headless_chromium(report: Path, tmp_path: Path) -> No
     assert found == expected
     assert facts["width"] <= WIDTH, "the page is wider than the window"
 
-    # every chart: findings, then per curve history, forwards, error, RMSE and premium
+    # the summary per curve, the overrides' two lists and the sign-off are there
+    for sub in ("govt", "swap", "Accepted days", "What-if builds"):
+        assert sub in facts["subheadings"], sub
+
+    # every chart: findings, then per curve history and the pairs' spreads, forwards, error (by horizon,
+    # RMSE, over time) and premium (over time, by regime)
     ids = [c["id"] for c in facts["charts"]]
-    assert ids == ["fig-findings", "fig-history-0", "fig-history-1", "fig-forwards-0", "fig-forwards-1",
-                   "fig-errors-0", "fig-rmse-0", "fig-errors-1", "fig-rmse-1", "fig-premium-0", "fig-premium-1"]
+    assert ids == ["fig-findings", "fig-history-0", "fig-spreads-0", "fig-history-1", "fig-spreads-1",
+                   "fig-forwards-0", "fig-forwards-1", "fig-errors-0", "fig-rmse-0", "fig-error-time-0",
+                   "fig-errors-1", "fig-rmse-1", "fig-error-time-1", "fig-premium-0", "fig-premium-regime-0",
+                   "fig-premium-1", "fig-premium-regime-1"]
     assert facts["svgs"] == len(ids)
     for chart in facts["charts"]:
         box = chart["box"]

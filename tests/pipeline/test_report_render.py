@@ -258,7 +258,10 @@ def _curve(name: str = "alpha", days: int = 520) -> CurveReport:
         history=history, history_label="zero rate (annual, ACT/360)", inversion_pair=("3M", "10Y"),
         episodes=episodes, pairs=pairs, outcomes=outcomes, summary=summary, premium=premium, premium_tenor=12,
         premium_window_days=250, first_day=d[0], last_day=d[-1], days_observed=d.size, pending=17,
-        notes=("A note & a caveat.",),
+        notes=("A note & a caveat.",), errors=outcomes[["as_of", "start_months", "tenor_months", "error_bp"]],
+        spreads=pd.DataFrame({"as_of": d, "short_tenor": "3M", "long_tenor": "10Y",
+                              "spread_bp": (rates["10Y"] - rates["3M"]) * 1e4}),
+        all_pairs=(("3M", "10Y"),),
     )
 
 
@@ -293,8 +296,8 @@ def test_page_has_every_section_in_order_and_balanced_markup(page: str) -> None:
     parsed = _parse(page)
     assert parsed.errors == [] and parsed.stack == []
     assert [re.sub(r"^\d+", "", h).strip() for h in parsed.h2] == [h for _, h in SECTIONS]
-    assert parsed.figures == ["fig-findings", "fig-history-0", "fig-forwards-0", "fig-errors-0", "fig-rmse-0",
-                              "fig-premium-0"]
+    assert parsed.figures == ["fig-findings", "fig-history-0", "fig-spreads-0", "fig-forwards-0", "fig-errors-0",
+                              "fig-rmse-0", "fig-error-time-0", "fig-premium-0", "fig-premium-regime-0"]
 
 
 def test_page_loads_nothing_and_runs_nothing(page: str) -> None:
