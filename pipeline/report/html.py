@@ -211,6 +211,8 @@ def _summary_points(c: CurveReport, v: pd.DataFrame) -> list[str]:
               else "") + ".")
     pos, neg = v[v["premium"] == "positive"], v[v["premium"] == "negative"]
     above = int((v["mean_error_bp"] > 0).sum())
+    if not v["mean_error_bp"].notna().any():
+        return [acc, "<strong>Premium.</strong> No mean error yet.", *_summary_points_rest(c, v)]
     lo, hi = v.loc[v["mean_error_bp"].idxmin()], v.loc[v["mean_error_bp"].idxmax()]
     where = ("above the rates that followed at most horizons" if above * 2 > total else
              "below the rates that followed at most horizons" if above * 2 < total else
@@ -223,6 +225,11 @@ def _summary_points(c: CurveReport, v: pd.DataFrame) -> list[str]:
     prem = (f"<strong>Premium.</strong> Forwards stood {where} ({above:,} of {total:,} with a positive mean "
             f"error); the mean error runs from {at(lo)} to {at(hi)}. Distinguishable from zero: positive at "
             f"{len(pos):,}, negative at {len(neg):,} horizons.")
+    return [acc, prem, *_summary_points_rest(c, v)]
+
+
+def _summary_points_rest(c: CurveReport, v: pd.DataFrame) -> list[str]:
+    total = len(v)
     n_eff = v["n_effective"].to_numpy(dtype=float)
     few = int(v["indicative"].sum())
     finite = n_eff[np.isfinite(n_eff)]
@@ -241,7 +248,7 @@ def _summary_points(c: CurveReport, v: pd.DataFrame) -> list[str]:
               f"each contender is not beaten at: {kept}.")
     else:
         cs = "<strong>Confidence set.</strong> Not computed yet (run 'afterward compare')."
-    return [acc, prem, ev, cs]
+    return [ev, cs]
 
 
 def _summary(data: ReportData) -> str:
@@ -746,8 +753,9 @@ def _signoff(data: ReportData) -> str:
     return _section("signoff", (
         '<p class="intro">To be completed on the printed or saved copy. Signing records that the reviewer read '
         "this report with its cautions; it does not turn statistical evidence into a decision.</p>"
-        f'<table class="signoff"><caption>Report generated {esc(fmt_timestamp(data.generated_at))}, input '
-        f"fingerprint {esc(_fingerprint_short(data))}</caption><thead><tr><th>Role</th><th>Name</th>"
+        f'<table class="signoff"><caption>Report generated {esc(fmt_timestamp(data.generated_at))}; input '
+        f"fingerprint {esc(_fingerprint_short(data))} (its first 16 hex digits; the whole one is under Scope and "
+        "provenance)</caption><thead><tr><th>Role</th><th>Name</th>"
         f"<th>Signature</th><th>Date</th></tr></thead><tbody>{rows}</tbody></table>"
         '<div class="remarks"><p>Remarks and conditions</p></div>'))
 
