@@ -6,6 +6,8 @@ exit status for it: 2 for bad usage or a bad config, 1 for everything else.
     AfterwardError
     ├── ConfigError        a bad afterward.toml (key, value, convention)         exit 2
     ├── TenorError         a tenor label that cannot be read                     exit 2
+    ├── ArgumentError      an argument that cannot be read or is refused         exit 2
+    │                      (a malformed date or timestamp, a query that writes)
     ├── UserError          a request that cannot be carried out (a missing file) exit 1
     ├── ModelInputError    data or settings the term-structure model cannot use  exit 2
     │                      (pipeline.term_structure.errors)
@@ -17,8 +19,8 @@ exit status for it: 2 for bad usage or a bad config, 1 for everything else.
 
 from __future__ import annotations
 
-__all__ = ["AfterwardError", "ConfigError", "RunInProgress", "StoreError", "StoreLocked", "StoreMissing",
-           "TenorError", "UserError"]
+__all__ = ["AfterwardError", "ArgumentError", "ConfigError", "RunInProgress", "StoreError", "StoreLocked",
+           "StoreMissing", "TenorError", "UserError"]
 
 
 class AfterwardError(Exception):
@@ -35,6 +37,13 @@ class ConfigError(AfterwardError, ValueError):
 
 class TenorError(AfterwardError, ValueError):
     """A tenor label that cannot be read."""
+
+    exit_code = 2
+
+
+class ArgumentError(AfterwardError, ValueError):
+    """An argument that cannot be read (a malformed date or timestamp) or is refused (a query that
+    would write); the message names the argument and what is allowed."""
 
     exit_code = 2
 
