@@ -208,3 +208,16 @@ def test_dates_and_year_fractions_of_the_curve(small_store: Project) -> None:
     with pytest.raises(ArgumentError) as err:
         c.discount("2033-02-30")
     _one_line(err.value)
+
+
+def test_the_config_is_found_as_the_command_line_finds_it(small_store: Project, tmp_path: Path,
+                                                          monkeypatch: pytest.MonkeyPatch) -> None:
+    # rule: CONTRACT.md, --config PATH, else $AFTERWARD_CONFIG, else ./afterward.toml
+    monkeypatch.delenv("AFTERWARD_CONFIG", raising=False)
+    monkeypatch.chdir(small_store.root)
+    assert afterward.open().store_path == small_store.cfg.store_path
+    monkeypatch.chdir(tmp_path)
+    with pytest.raises(ConfigError):
+        afterward.open()
+    monkeypatch.setenv("AFTERWARD_CONFIG", str(small_store.cfg.path))
+    assert afterward.open().curves == ["govt", "lz", "lld"]
