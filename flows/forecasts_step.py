@@ -22,21 +22,16 @@ import pyarrow as pa
 
 from flows.load_step import _NotRegular, _read_regular_file
 from pipeline.config import Config
-from pipeline.errors import AfterwardError
+from pipeline.errors import ForecastRequestError
 from pipeline.forecast_intake import ForecastRead, prepare_forecasts, read_forecast_file
 from pipeline.readers import UNIT_DIVISORS, ReadLimits
 from warehouse.connect import reader, writer_for
 from warehouse.forecasts import forecast_listing, record_forecast_file
 from warehouse.loads import LoadOutcome
 
-__all__ = ["ForecastRequestError", "list_forecasts", "load_forecasts"]
+__all__ = ["list_forecasts", "load_forecasts"]
 
 
-class ForecastRequestError(AfterwardError):
-    """A forecast load that cannot be carried out as asked (a bad name, curve, units or file): nothing
-    is changed."""
-
-    exit_code = 2
 
 
 @dataclass

@@ -255,6 +255,25 @@ def print_compare(summary, fmt: str, console, start: int | None = None, tenor: i
                   "forecasts.")
 
 
+def print_changes(rows, fmt: str, console, since) -> None:  # noqa: ANN001
+    """The changes since a time (:func:`flows.changes_step.change_rows`): a table, or CSV / JSON."""
+    if fmt in ("csv", "json"):
+        write_result(pa.Table.from_pandas(rows, preserve_index=False), fmt, None, console)
+        return
+    from rich.table import Table
+
+    if rows.empty:
+        console.print(f"nothing changed in the record since {since:%Y-%m-%d %H:%M:%S} UTC")
+        return
+    t = Table(title=f"changes since {since:%Y-%m-%d %H:%M:%S} UTC")
+    for col in ("kind", "curve", "as of", "item", "old", "new", "why"):
+        t.add_column(col)
+    for r in rows.itertuples(index=False):
+        day = "" if r.as_of is None or (isinstance(r.as_of, float) and math.isnan(r.as_of)) else str(r.as_of)[:10]
+        t.add_row(r.kind, r.curve, day, str(r.item), str(r.old), str(r.new), str(r.why))
+    console.print(t)
+
+
 def print_model(summary, console) -> None:  # noqa: ANN001
     """Per curve: the panel (month ends, skipped months), the fits, the latest real-time 2/5/10-year
     term premium in bp, and the regressions' verdict lines."""

@@ -7,10 +7,12 @@ exit status for it: 2 for bad usage or a bad config, 1 for everything else.
     ├── ConfigError        a bad afterward.toml (key, value, convention)         exit 2
     ├── TenorError         a tenor label that cannot be read                     exit 2
     ├── ArgumentError      an argument that cannot be read or is refused         exit 2
-    │                      (a malformed date or timestamp, a query that writes)
+    │                      (a malformed date, a query that writes)
     ├── UserError          a request that cannot be carried out (a missing file) exit 1
     ├── ModelInputError    data or settings the term-structure model cannot use  exit 2
     │                      (pipeline.term_structure.errors)
+    ├── ForecastRequestError  a forecast load refused before anything changed    exit 2
+    ├── KnownAtError       an --as-known-at / --known-since time that cannot be used exit 2
     └── StoreError         the store cannot be used as asked                     exit 1
         ├── StoreLocked    another process holds its write lock
         ├── StoreMissing   no store at the configured path
@@ -19,8 +21,8 @@ exit status for it: 2 for bad usage or a bad config, 1 for everything else.
 
 from __future__ import annotations
 
-__all__ = ["AfterwardError", "ArgumentError", "ConfigError", "RunInProgress", "StoreError", "StoreLocked",
-           "StoreMissing", "TenorError", "UserError"]
+__all__ = ["AfterwardError", "ArgumentError", "ConfigError", "ForecastRequestError", "KnownAtError",
+           "RunInProgress", "StoreError", "StoreLocked", "StoreMissing", "TenorError", "UserError"]
 
 
 class AfterwardError(Exception):
@@ -42,14 +44,28 @@ class TenorError(AfterwardError, ValueError):
 
 
 class ArgumentError(AfterwardError, ValueError):
-    """An argument that cannot be read (a malformed date or timestamp) or is refused (a query that
-    would write); the message names the argument and what is allowed."""
+    """An argument that cannot be read (a malformed date) or is refused (a query that would write);
+    the message names the argument and what is allowed. Times for as-known-at: :class:`KnownAtError`."""
 
     exit_code = 2
 
 
 class UserError(AfterwardError, RuntimeError):
     """A request that cannot be carried out as asked (a missing or unreadable file, say)."""
+
+
+class ForecastRequestError(AfterwardError):
+    """A forecast load that cannot be carried out as asked (a bad name, curve, units or file): nothing
+    is changed."""
+
+    exit_code = 2
+
+
+class KnownAtError(AfterwardError, ValueError):
+    """A time for ``--as-known-at`` or ``--known-since`` that is malformed, in the future or before
+    the first load."""
+
+    exit_code = 2
 
 
 class StoreError(AfterwardError, RuntimeError):

@@ -599,6 +599,14 @@ def _span(curves: Sequence[CurveReport]) -> tuple[object, object]:
     return (min(firsts) if firsts else None, max(lasts) if lasts else None)
 
 
+def _known_at_banner(data: ReportData) -> str:
+    if data.as_known_at is None:
+        return ""
+    return (f'<p class="known-at" role="note"><strong>Data as known at {esc(fmt_timestamp(data.as_known_at))} UTC.'
+            "</strong> This report was recomputed from the archive as it stood then (quote versions, findings and "
+            "acceptances of that time; later loads and restatements left out). It is not the current record.</p>")
+
+
 def render_report(data: ReportData) -> str:
     """The whole report as one self-contained HTML document (UTF-8 text).
 
@@ -612,7 +620,7 @@ def render_report(data: ReportData) -> str:
     body = [
         '<header class="masthead"><p class="kicker">Model validation evidence \u00b7 implied forwards against '
         "realised rates</p>"
-        f"<h1>{esc(data.title)}</h1><p class=\"lede\">{esc(lede)}</p>{_facts(data)}"
+        f"<h1>{esc(data.title)}</h1><p class=\"lede\">{esc(lede)}</p>{_known_at_banner(data)}{_facts(data)}"
         f'<nav class="contents"><p>Contents</p><ol>{toc}</ol></nav></header>',
         _scope(data),
         _quality(data, first, last),

@@ -78,6 +78,7 @@ class ReportData:
     ``findings``: the ``findings`` view's rows in scope; ``held``: open, unaccepted ``reject``
     findings (days kept out of the build); ``rejected_rows``: ``load_id, file_name, line, raw, reason``.
     ``window``: the ``(from, to)`` ISO dates asked for, ``None`` for open ends.
+    ``as_known_at``: for a report of the archive as it stood at a past time (naive UTC), that time.
     """
 
     generated_at: datetime
@@ -87,6 +88,7 @@ class ReportData:
     store_path: str = ""
     config_path: str = ""
     window: tuple[str | None, str | None] = (None, None)
+    as_known_at: datetime | None = None
     loads: pd.DataFrame = field(default_factory=_empty)
     builds: pd.DataFrame = field(default_factory=_empty)
     findings: pd.DataFrame = field(default_factory=_empty)
