@@ -17,8 +17,8 @@ import os
 
 from afterward.handle import Archive, _timestamp
 from pipeline.config import find_config, load_config
-from pipeline.errors import AfterwardError, ArgumentError
-from warehouse import archive as _views
+from pipeline.errors import AfterwardError, KnownAtError
+from warehouse.as_known_at import first_known
 from warehouse.connect import reader
 from warehouse.loads import utc_now
 
@@ -31,8 +31,8 @@ def open(config: str | os.PathLike[str] | None = None, as_known_at: object = Non
     ``config``: a path to ``afterward.toml``; by default the command line's discovery
     (``$AFTERWARD_CONFIG``, else ``./afterward.toml``). ``as_known_at``: an ISO 8601 timestamp or a
     ``datetime`` (without a zone: UTC) to see the archive as it stood then; so far only
-    :meth:`Archive.quotes` answers it (the rest of issue 19 is not built yet). A timestamp before
-    the store's first load or in the future is refused.
+    :meth:`Archive.quotes` answers it. A time before the store's first known load (its
+    ``known_since``, else its start) or in the future is refused (:class:`KnownAtError`).
 
     The store is opened once here, read-only, to check it is an afterward store, and closed again.
     Every mistake raises a subclass of :class:`AfterwardError` with a one-line message.
@@ -40,13 +40,13 @@ def open(config: str | os.PathLike[str] | None = None, as_known_at: object = Non
     cfg = load_config(find_config(config))
     known = _timestamp(as_known_at)
     with reader(cfg.store_path) as con:
-        first = _views.first_load_at(con)
+        first = first_known(con)
     if known is not None:
         now = utc_now()
         if known > now:
-            raise ArgumentError(f"as_known_at {known.isoformat()} UTC is in the future "
+            raise KnownAtError(f"as_known_at {known.isoformat()} UTC is in the future "
                                 f"(now {now:%Y-%m-%dT%H:%M:%S} UTC)")
         if first is None or known < first:
-            since = "nothing was ever loaded" if first is None else f"the first load started {first.isoformat()} UTC"
-            raise ArgumentError(f"as_known_at {known.isoformat()} UTC is before the archive existed ({since})")
+            since = "nothing was ever loaded" if first is None else f"the first load's data: {first.isoformat()} UTC"
+            raise KnownAtError(f"as_known_at {known.isoformat()} UTC is before the archive existed ({since})")
     return Archive(cfg, known)

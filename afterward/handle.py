@@ -24,7 +24,7 @@ import pyarrow as pa
 from pipeline.config import Config
 from pipeline.curves.base import CurveSet
 from pipeline.curves.build import curves_from_stored
-from pipeline.errors import ArgumentError, TenorError, UserError
+from pipeline.errors import ArgumentError, KnownAtError, TenorError, UserError
 from pipeline.tenors import parse_tenor
 from warehouse import archive
 from warehouse.connect import reader
@@ -33,7 +33,7 @@ from warehouse.query import refuse_writes
 
 __all__ = ["Archive"]
 
-_NOT_YET = ("as-known-at for {what} is not built yet (issue 19, 'As known at'); "
+_NOT_YET = ("as-known-at for {what} is not built yet in the notebook handle (issue 19, 'As known at'); "
             "open the handle without as_known_at, or use quotes(), which supports it")
 
 
@@ -68,7 +68,7 @@ def _timestamp(value: object, name: str = "as_known_at") -> dt.datetime | None:
         except ValueError:
             when = None
     if when is None:
-        raise ArgumentError(f"{name} {value!r} is not an ISO 8601 timestamp (e.g. 2031-03-31T18:00:00Z)")
+        raise KnownAtError(f"{name} {value!r} is not an ISO 8601 timestamp (e.g. 2031-03-31T18:00:00Z)")
     if when.tzinfo is not None:
         when = when.astimezone(dt.UTC).replace(tzinfo=None)
     return pd.Timestamp(when).to_pydatetime()
@@ -108,8 +108,8 @@ class Archive:
     date-like); ``start`` / ``tenor`` a tenor label (``"1Y"``) or whole months (``12``).
 
     ``as_known_at`` (naive UTC, or None): the archive as it stood then. Only :meth:`quotes` answers
-    it so far (the quote versions current at that time); every other method refuses it in one line
-    until the rest of issue 19 ("As known at") is built.
+    it so far (the quotes of the loads known by then, by the rule of ``--as-known-at``); every
+    other method refuses it in one line until the handle composes the rest of issue 19.
     """
 
     def __init__(self, cfg: Config, as_known_at: dt.datetime | None = None) -> None:
@@ -182,8 +182,9 @@ class Archive:
     def quotes(self, curve: str | None = None, from_: object = None, to: object = None) -> pd.DataFrame:
         """The ``quotes`` view: the current version of each quote, one row per (curve, as_of, tenor).
         ``rate`` is the file's number as a decimal and otherwise as quoted (the curve's ``quote``
-        kind, compounding and day count). With the handle's ``as_known_at``: the versions current
-        at that time (``quotes_as_of``)."""
+        kind, compounding and day count). With the handle's ``as_known_at``: the quotes as known
+        then (the loads whose data was available by then, ``load --known-since`` included; of each
+        key the latest such load's version), as ``afterward sql --as-known-at`` sees them."""
         curve, first, last = self._curve(curve), _day(from_, "from_"), _day(to, "to")
         with self._connection() as con:
             return _frame(archive.read_quotes(con, curve, first, last, self.as_known_at))

@@ -12,9 +12,7 @@ from datetime import datetime
 import duckdb
 import pyarrow as pa
 
-from warehouse.query import fetch_value
-
-__all__ = ["first_load_at", "read_audit", "read_forwards", "read_outcomes", "read_quotes", "read_query"]
+__all__ = ["read_audit", "read_forwards", "read_outcomes", "read_quotes", "read_query"]
 
 # each view's own order: one row per key, keys in the order a reader scans them
 _ORDER = {
@@ -48,14 +46,29 @@ def read_query(con: duckdb.DuckDBPyConnection, query: str) -> pa.Table:
     return rel.to_arrow_table() if rel is not None else pa.table({})
 
 
+# the quotes as known at a time, by the rule of warehouse.as_known_at (the scratch copy behind
+# --as-known-at): a load is known from its known_since, else its start; of a (curve, as_of, tenor)
+# the version of the latest known load is current
+_QUOTES_KNOWN_AT = """(
+    SELECT q.curve, q.as_of, q.tenor, q.maturity_date, q.rate, q.recorded_at, q.source_file,
+           tenor_in_months(q.tenor) AS tenor_months
+    FROM quote_version q
+    JOIN (SELECT load_id, coalesce(known_since, started_at) AS known_at FROM load_log) k USING (load_id)
+    WHERE k.known_at <= CAST(? AS TIMESTAMP)
+    QUALIFY row_number() OVER (PARTITION BY q.curve, q.as_of, q.tenor
+                               ORDER BY k.known_at DESC, q.recorded_at DESC) = 1)"""
+
+
 def read_quotes(con: duckdb.DuckDBPyConnection, curve: str | None = None, first: str | None = None,
                 last: str | None = None, as_known_at: datetime | None = None) -> pa.Table:
-    """The ``quotes`` view (or ``quotes_as_of(as_known_at)``, naive UTC), optionally one curve and
-    as-of days ``first .. last`` (ISO days, inclusive)."""
+    """The ``quotes`` view, optionally one curve and as-of days ``first .. last`` (ISO days,
+    inclusive); with ``as_known_at`` (naive UTC), the quotes as known then, with the columns of
+    ``quotes``: of each key the version from the latest load known by then (a load is known from
+    its ``known_since``, else from its start), as the ``--as-known-at`` scratch copy has them."""
     where, params = _where(curve, first, last)
     if as_known_at is None:
         return _read(con, "quotes", "quotes", where, params)
-    return _read(con, "quotes_as_of(CAST(? AS TIMESTAMP))", "quotes", where, [as_known_at, *params])
+    return _read(con, _QUOTES_KNOWN_AT, "quotes", where, [as_known_at, *params])
 
 
 def read_forwards(con: duckdb.DuckDBPyConnection, curve: str | None = None, start: int | None = None,
@@ -77,8 +90,3 @@ def read_audit(con: duckdb.DuckDBPyConnection, curve: str | None = None) -> pa.T
     """The ``audit_summary`` view, optionally one curve."""
     where, params = _where(curve, None, None)
     return _read(con, "audit_summary", "audit_summary", where, params)
-
-
-def first_load_at(con: duckdb.DuckDBPyConnection) -> datetime | None:
-    """When the first load started (naive UTC), or None for a store never loaded."""
-    return fetch_value(con, "SELECT min(started_at) FROM loads")
