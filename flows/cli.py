@@ -246,45 +246,10 @@ def forecasts_list(
 
 # --- sql -----------------------------------------------------------------------------------------
 
-_ALLOWED_STATEMENTS = {"SELECT", "EXPLAIN"}
-
-
 def _guard_sql(query: str) -> None:
-    import re
+    from warehouse.query import refuse_writes
 
-    import duckdb
-
-    def kind_of(st) -> str:  # noqa: ANN001 - a duckdb Statement
-        kind = str(st.type).rsplit(".", 1)[-1]
-        if kind != "EXPLAIN":
-            return kind
-        # EXPLAIN ANALYZE runs the statement it explains: what follows EXPLAIN [ANALYZE] [(options)]
-        # is judged as a statement of its own
-        m = re.match(r"^\s*(?:(?:--[^\n]*(?:\n|$)|/\*.*?\*/)\s*)*EXPLAIN\b\s*(?:ANALY[SZ]E\b\s*)?(?:\([^()]*\)\s*)?",
-                     st.query, flags=re.IGNORECASE | re.DOTALL)
-        try:
-            inner = duckdb.extract_statements(st.query[m.end():]) if m else []
-        except duckdb.Error:
-            inner = []
-        if len(inner) != 1:
-            return "EXPLAIN of an unrecognised form"
-        inner_kind = str(inner[0].type).rsplit(".", 1)[-1]
-        return "EXPLAIN" if inner_kind == "SELECT" else f"EXPLAIN {inner_kind}"
-
-    try:
-        statements = duckdb.extract_statements(query)
-    except duckdb.Error as exc:
-        raise _Exit(f"SQL error: {str(exc).splitlines()[0]}", 2) from None
-    if not statements:
-        raise _Exit("no SQL statement given", 2)
-    for st in statements:  # a write anywhere in the text is named as such
-        kind = kind_of(st)
-        if kind not in _ALLOWED_STATEMENTS:
-            raise _Exit(f"refused: {kind} statements are not allowed; 'afterward sql' is read-only "
-                        "(queries only)", 2)
-    if len(statements) > 1:
-        # DuckDB's own splitter: a ';' inside a string literal or a comment does not count, a trailing one is fine
-        raise _Exit(f"one statement at a time: the query holds {len(statements)} statements", 2)
+    refuse_writes(query)  # shared with the notebook handle (afterward.open().sql)
 
 
 @app.command()
