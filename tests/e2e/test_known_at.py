@@ -186,9 +186,11 @@ def test_a_report_as_known_at_says_so_at_the_top(history, tmp_path) -> None:  # 
     done = run_cli("report", "--as-known-at", t1, "--out", str(tmp_path), "--config", str(p.root / "afterward.toml"),
                    cwd=p.root, timeout=600)
     assert done.returncode == 0, done.stderr
-    page = (tmp_path / done.stdout.strip().splitlines()[-1]).read_text(encoding="utf-8") \
-        if not done.stdout.strip().splitlines()[-1].startswith("/") else \
-        open(done.stdout.strip().splitlines()[-1], encoding="utf-8").read()
+    from pathlib import Path
+
+    path = Path(done.stdout.strip().splitlines()[-1])
+    assert path.parent == tmp_path  # the report goes where --out says, never into the scratch folder
+    page = path.read_text(encoding="utf-8")
     head = page[:page.index('<section')]
     assert "Data as known at" in head and "It is not the current record." in head
     assert "recomputed on a scratch copy" in done.stderr
