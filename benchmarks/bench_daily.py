@@ -82,11 +82,14 @@ def write_files(market, days_slice, folder: Path, name: str | None = None) -> li
 
 
 def make_history(root: Path, years: int) -> tuple[Path, list[Path]]:
-    """A project whose store holds ``years`` of history, built; returns (config path, new-day files)."""
+    """A project whose store holds ``years`` of history, built, realised, audited and with its
+    term-structure estimate (as a store the daily job has kept is: the month-end estimate is made when
+    a month closes, and the new day closes none); returns (config path, new-day files)."""
     from flows.audit_step import run_audit
     from flows.build_step import run_build
     from flows.check_step import run_checks
     from flows.load_step import load_files
+    from flows.model_step import run_model
     from flows.realize_step import run_realize
     from pipeline.config import load_config
     from pipeline.demo import demo_config_toml, generate_market
@@ -105,6 +108,7 @@ def make_history(root: Path, years: int) -> tuple[Path, list[Path]]:
     run_build(cfg)
     run_realize(cfg)
     run_audit(cfg)
+    run_model(cfg)
     with writer(cfg.store_path) as con:
         con.execute("CHECKPOINT")
     shutil.copy2(cfg.store_path, root / "snapshot.duckdb")
