@@ -88,8 +88,15 @@ def _state_meta(c: CurveConfig, seen: tuple, version, now) -> tuple:  # noqa: AN
     return (STATE_FORMAT, c.premium_window_days, _pair_label(c), seen[0], seen[1], seen[2], version, now)
 
 
+def _version() -> str:
+    from flows.build_step import code_version
+
+    return code_version()
+
+
 def _store_whole(con, name: str, c: CurveConfig, audit: WholeAudit, seen: tuple, now) -> None:  # noqa: ANN001
     store.write_results(con, name, audit.summary, audit.premium, None)
+    store.record_run(con, name, now, "full", _version())
     if audit.states is None:
         store.drop_state(con, name)
     else:
@@ -164,6 +171,7 @@ def _refresh_curve(con, cfg: Config, name: str, now) -> AuditRefresh:  # noqa: A
         else new["realized_at"].max()
     summary = finish_summary(summary, version, now)
     store.write_results(con, name, summary, premium, folded.recompute)
+    store.record_run(con, name, now, "incremental", _version())
     store.write_state(con, name, folded.states, _state_meta(c, seen, version, now), folded.tail_changes)
     return AuditRefresh(name, "incremental", summary, new_outcomes=len(new), recomputed=folded.recompute)
 

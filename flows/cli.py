@@ -162,18 +162,74 @@ def load(
                      ] = None,
     reprocess: Annotated[bool, typer.Option(
         "--reprocess", help="Load files already loaded into the same curve again, as new loads that say so.")] = False,
+    known_since: Annotated[str | None, typer.Option(
+        "--known-since", metavar="TS", help="When the files' data was first available (ISO 8601, UTC when no zone "
+                                            "is given; not after now); default: the load time.")] = None,
     config: ConfigOption = None,
 ) -> None:
     """Load rate files, each in one transaction, and report what happened to every row."""
     from flows.load_step import load_files
 
+    since = None
+    if known_since is not None:
+        from flows.known_at_step import parse_known_at
+
+        since = parse_known_at(known_since, "--known-since")
     cfg = _config(curve)
     console = _console()
-    outcomes = load_files(cfg, files, curve, reprocess=reprocess,
+    outcomes = load_files(cfg, files, curve, reprocess=reprocess, known_since=since,
                           on_file=lambda o: console.print(describe_outcome(o), markup=False))
     bad = [o for o in outcomes if o.status in ("refused", "missing") or o.rows_rejected]
     if bad:
         raise typer.Exit(1)
+
+
+# --- forecasts (user contenders) -----------------------------------------------------------------
+
+forecasts_app = typer.Typer(cls=_Group, no_args_is_help=True,
+                            help="Load a team's own forecast files, scored later beside the forwards.")
+app.add_typer(forecasts_app, name="forecasts")
+
+
+@forecasts_app.command("load")
+def forecasts_load(
+    files: Annotated[list[Path], typer.Argument(metavar="FILE...", help="Forecast files (CSV, Parquet, .xlsx): "
+                                                "as_of, start, tenor, rate[, curve].")],
+    name: Annotated[str, typer.Option("--name", metavar="NAME", help="The contender's name: a lower-case "
+                                      "letter, then lower-case letters, digits or _; not a built-in.")],
+    curve: Annotated[str | None, typer.Option("--curve", metavar="CURVE", help="The curve of rows without a curve "
+                                              "column (required if the file has none).")] = None,
+    units: Annotated[str | None, typer.Option("--units", metavar="UNITS", help="percent | decimal | bp (default: "
+                                              "the curve's units).")] = None,
+    config: ConfigOption = None,
+) -> None:
+    """Load forecast files as one contender, each in one transaction, and report what happened to every row."""
+    from flows.forecasts_step import load_forecasts
+
+    cfg = _config()
+    console = _console()
+    outcomes = load_forecasts(cfg, files, name, curve, units,
+                              on_file=lambda o: console.print(describe_outcome(o), markup=False))
+    if any(o.status == "refused" or o.rows_rejected for o in outcomes):
+        raise typer.Exit(1)
+
+
+@forecasts_app.command("list")
+def forecasts_list(
+    fmt: Annotated[str, typer.Option("--format", metavar="FORMAT", help="table | csv | json")] = "table",
+    config: ConfigOption = None,
+) -> None:
+    """What forecasts are loaded: per name and curve, files, current rows, first and last as-of, last load."""
+    if fmt not in ("table", "csv", "json"):
+        raise _Exit(f"--format {fmt!r} is not allowed; allowed: table, csv, json", 2)
+    from flows.forecasts_step import list_forecasts
+    from flows.output import write_result
+
+    table = list_forecasts(_config())
+    if fmt == "table" and table.num_rows == 0:
+        _console().print("no forecasts loaded (afterward forecasts load FILE... --name NAME)", markup=False)
+        return
+    write_result(table, fmt, None, _console())
 
 
 # --- sql -----------------------------------------------------------------------------------------
@@ -226,6 +282,7 @@ def sql(
     out: Annotated[Path | None, typer.Option("--out", metavar="FILE", help="Write the result to this file.")] = None,
     allow_files: Annotated[bool, typer.Option("--allow-files", help="Let the query read files.")] = False,
     force: ForceOption = False,
+    as_known_at: KnownAtOption = None,
     config: ConfigOption = None,
 ) -> None:
     """Run an ad-hoc query on a read-only connection.
@@ -254,12 +311,25 @@ def sql(
         for p in (Path(os.path.abspath(folder)), Path(folder).resolve()):
             if p != Path.home().resolve() and p.parent != p and p not in folders:
                 folders.append(p)
-    with reader(cfg.store_path, external_access=allow_files, allowed_directories=folders) as con:
-        try:
-            rel = con.sql(query)
-            table = rel.to_arrow_table() if rel is not None else None
-        except duckdb.Error as exc:
-            raise _Exit(f"SQL error: {str(exc).splitlines()[0]}", 2) from None
+
+    def run(path: Path):  # noqa: ANN202
+        with reader(path, external_access=allow_files, allowed_directories=folders) as con:
+            try:
+                rel = con.sql(query)
+                return rel.to_arrow_table() if rel is not None else None
+            except duckdb.Error as exc:
+                raise _Exit(f"SQL error: {str(exc).splitlines()[0]}", 2) from None
+
+    ts = _known_at(as_known_at)
+    if ts is None:
+        table = run(cfg.store_path)
+    else:
+        from flows.known_at_step import known_at
+
+        with known_at(cfg, ts, compare=True) as k:
+            folders.append(k.cfg.store_path.parent)
+            table = run(k.cfg.store_path)
+        _print_notes(k.notes, _console(stderr=True))
     if table is None:
         return
     write_result(table, fmt, out, _console())
@@ -293,6 +363,25 @@ def status(config: ConfigOption = None) -> None:
 
 
 # --- check and build -----------------------------------------------------------------------------
+
+KnownAtOption = Annotated[str | None, typer.Option(
+    "--as-known-at", metavar="TS", help="Compute from the archive as it stood at this time (ISO 8601; UTC when "
+                                        "no zone is given), on a scratch copy.")]
+
+
+def _known_at(value: str | None):  # noqa: ANN202
+    """The parsed ``--as-known-at`` time (naive UTC), or None."""
+    if value is None:
+        return None
+    from flows.known_at_step import parse_known_at
+
+    return parse_known_at(value, "--as-known-at")
+
+
+def _print_notes(notes: list[str], console) -> None:  # noqa: ANN001
+    for line in notes:
+        console.print(line, markup=False)
+
 
 def _day(value: str | None, option: str) -> str | None:
     if value is None:
@@ -435,6 +524,7 @@ def audit(
     first: Annotated[str | None, typer.Option("--from", metavar="DATE", help="First as-of date (YYYY-MM-DD).")] = None,
     last: Annotated[str | None, typer.Option("--to", metavar="DATE", help="Last as-of date (YYYY-MM-DD).")] = None,
     fmt: Annotated[str, typer.Option("--format", metavar="FORMAT", help="table | csv | json")] = "table",
+    as_known_at: KnownAtOption = None,
     config: ConfigOption = None,
 ) -> None:
     """Forecast-error statistics by horizon, with a plain-language line for each."""
@@ -448,8 +538,74 @@ def audit(
     names = [curve] if curve else list(cfg.curves)
     _in_grid(cfg, names, s_months, start, "--start", "starts", "forward_starts")
     _in_grid(cfg, names, t_months, tenor, "--tenor", "tenors", "forward_tenors")
-    results = run_audit(cfg, curve, _day(first, "--from"), _day(last, "--to"))
+    window = (_day(first, "--from"), _day(last, "--to"))
+    ts = _known_at(as_known_at)
+    if ts is None:
+        print_audit(run_audit(cfg, curve, *window), fmt, _console(), s_months, t_months)
+        return
+    from flows.known_at_step import known_at
+
+    with known_at(cfg, ts, audit=False) as k:
+        results = run_audit(k.cfg, curve, *window)
+    _print_notes(k.notes, _console(stderr=fmt != "table"))
     print_audit(results, fmt, _console(), s_months, t_months)
+
+
+@app.command()
+def compare(
+    curve: Annotated[str | None, typer.Option("--curve", metavar="CURVE", help="Only this curve.")] = None,
+    start: Annotated[str | None, typer.Option("--start", metavar="TENOR",
+                                              help="Only forecasts starting this far ahead (e.g. 1Y).")] = None,
+    tenor: Annotated[str | None, typer.Option("--tenor", metavar="TENOR",
+                                              help="Only forecasts of this tenor (e.g. 3M).")] = None,
+    first: Annotated[str | None, typer.Option("--from", metavar="DATE", help="First as-of date (YYYY-MM-DD).")] = None,
+    last: Annotated[str | None, typer.Option("--to", metavar="DATE", help="Last as-of date (YYYY-MM-DD).")] = None,
+    fmt: Annotated[str, typer.Option("--format", metavar="FORMAT", help="table | csv | json")] = "table",
+    as_known_at: KnownAtOption = None,
+    config: ConfigOption = None,
+) -> None:
+    """Score the forwards against every contender forecast: errors, tests and the confidence set by horizon."""
+    if fmt not in ("table", "csv", "json"):
+        raise _Exit(f"--format {fmt!r} is not allowed; allowed: table, csv, json", 2)
+    s_months, t_months = _months_option(start, "--start"), _months_option(tenor, "--tenor")
+    from flows.compare_step import run_compare
+    from flows.output import print_compare
+
+    cfg = _config(curve)
+    first_day, last_day = _day(first, "--from"), _day(last, "--to")
+    if first_day and last_day and first_day > last_day:
+        raise _Exit(f"--from {first_day} is after --to {last_day}", 2)
+    ts = _known_at(as_known_at)
+    if ts is None:
+        print_compare(run_compare(cfg, curve, first_day, last_day), fmt, _console(), s_months, t_months)
+        return
+    from flows.known_at_step import known_at
+
+    with known_at(cfg, ts, audit=False, model=True) as k:
+        summary = run_compare(k.cfg, curve, first_day, last_day)
+    _print_notes(k.notes, _console(stderr=fmt != "table"))
+    print_compare(summary, fmt, _console(), s_months, t_months)
+
+
+@app.command()
+def changes(
+    since: Annotated[str, typer.Option("--since", metavar="TS", help="Since this time (ISO 8601; UTC when no zone "
+                                                                     "is given).")],
+    curve: Annotated[str | None, typer.Option("--curve", metavar="CURVE", help="Only this curve.")] = None,
+    fmt: Annotated[str, typer.Option("--format", metavar="FORMAT", help="table | csv | json")] = "table",
+    config: ConfigOption = None,
+) -> None:
+    """What changed in the record since a time, and why: restated quotes, rebuilt days, superseded outcomes,
+    audit cells that moved."""
+    if fmt not in ("table", "csv", "json"):
+        raise _Exit(f"--format {fmt!r} is not allowed; allowed: table, csv, json", 2)
+    from flows.changes_step import change_rows, changes_since
+    from flows.known_at_step import parse_known_at
+    from flows.output import print_changes
+
+    ts = parse_known_at(since, "--since")
+    cfg = _config(curve)
+    print_changes(change_rows(changes_since(cfg, ts, curve)), fmt, _console(), ts)
 
 
 @app.command()
@@ -491,6 +647,7 @@ def report(
     curve: Annotated[str | None, typer.Option("--curve", metavar="CURVE", help="Only this curve.")] = None,
     first: Annotated[str | None, typer.Option("--from", metavar="DATE", help="First as-of date (YYYY-MM-DD).")] = None,
     last: Annotated[str | None, typer.Option("--to", metavar="DATE", help="Last as-of date (YYYY-MM-DD).")] = None,
+    as_known_at: KnownAtOption = None,
     config: ConfigOption = None,
 ) -> None:
     """Write a self-contained HTML audit report and print its path.
@@ -502,7 +659,18 @@ def report(
     if out is not None and out.exists() and not out.is_dir():
         raise _Exit(f"--out {out} is a file; --out names the folder the report is written into", 2)
     cfg = _config(curve)
-    path = write_report(cfg, out, curve, _day(first, "--from"), _day(last, "--to"))
+    window = (_day(first, "--from"), _day(last, "--to"))
+    ts = _known_at(as_known_at)
+    if ts is None:
+        _console().print(str(write_report(cfg, out, curve, *window)))
+        return
+    from flows.known_at_step import known_at
+
+    if out is None:  # reports/ beside the real config, not inside the scratch folder
+        out = (cfg.path.parent if cfg.path else Path(cfg.store_path).parent) / "reports"
+    with known_at(cfg, ts, compare=True) as k:
+        path = write_report(k.cfg, out, curve, *window, as_known_at=ts)
+    _print_notes(k.notes, _console(stderr=True))
     _console().print(str(path))
 
 

@@ -1,5 +1,6 @@
 """The daily job as a Prefect flow: take the new files from the inbox, load, check, build, realize, audit,
-and, when a month has closed since the last estimate, the term-structure lens (the month-end estimate).
+and, when a month has closed since the last estimate, the term-structure lens (the month-end estimate);
+then the contender comparison of the curves whose inputs changed.
 
 Each task is one step (:mod:`flows.tasks`), called unchanged, so the same work runs without Prefect
 (``afterward load``, ``check``, ``build``, ``realize``, ``audit``). The run takes the store's run lock
@@ -28,6 +29,7 @@ from prefect import flow, get_run_logger, task
 from prefect.artifacts import create_table_artifact
 from prefect.cache_policies import NO_CACHE
 
+from flows.compare_step import compare_due
 from flows.daily_summary import COMPLETED, COMPLETED_WITH_FINDINGS, DailySummary, curve_rows, file_record, summarise
 from flows.inbox import PATIENCE_SECONDS, SETTLE_SECONDS, file_away, stable_files
 from flows.load_step import READ_AHEAD_MIN_FILES, reader_process
@@ -41,6 +43,7 @@ from flows.tasks import (
     note_late,
     realize_forwards,
     refresh_audit,
+    refresh_compare,
     refresh_model,
     run_store,
     scan_inbox,
@@ -110,6 +113,9 @@ def _daily(cfg: Config, settle_seconds: float, patience_seconds: float) -> Daily
             due = model_due(cfg, con=con)  # the month-end estimate, only when a month has closed since
             if due:
                 summary.modelled = list(timed("model", refresh_model, cfg, con, due).curves)
+            due = compare_due(cfg, con=con)  # after the model: its estimate feeds model_expected
+            if due:
+                summary.compared = list(timed("compare", refresh_compare, cfg, con, due).curves)
             found = findings_since(con, started)
     finally:
         if reader is not None:

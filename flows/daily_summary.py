@@ -20,7 +20,7 @@ class DailySummary:
     ``findings`` counts the findings raised during the run by severity (load-time and curve-level);
     ``seconds`` the wall time of each step; ``work_seconds`` the whole flow body (Prefect's own
     start-up excluded); ``modelled`` the curves whose term-structure estimate was refreshed (a month
-    had closed since the last one).
+    had closed since the last one); ``compared`` the curves whose contender comparison was recomputed.
     """
 
     status: str = COMPLETED
@@ -31,6 +31,7 @@ class DailySummary:
     seconds: dict[str, float] = field(default_factory=dict)
     work_seconds: float = 0.0
     modelled: list[str] = field(default_factory=list)  # curves whose month-end model estimate was refreshed
+    compared: list[str] = field(default_factory=list)  # curves whose contender comparison was recomputed
 
     def _count(self, status: str) -> int:
         return sum(1 for f in self.files if f["status"] == status)

@@ -1,6 +1,7 @@
 """``afterward demo``: the invented market, generated, loaded and carried through the whole job.
 
-The demo calls the same steps as the commands (load, check, build, realize, audit, report), without
+The demo calls the same steps as the commands (load, check, build, realize, audit, the desk view's
+forecast file, compare, report), without
 Prefect, so it starts quickly and shows each stage's result as it goes.
 """
 
@@ -8,9 +9,10 @@ from __future__ import annotations
 
 from pathlib import Path
 
-from pipeline.config import load_config
+from pipeline.config import Config, load_config
+from pipeline.demo.desk_view import DESK_VIEW_FILE, DESK_VIEW_NAME, DESK_VIEW_WEEKDAY
 
-__all__ = ["make_demo_folder", "run_demo"]
+__all__ = ["load_desk_view", "make_demo_folder", "run_demo"]
 
 
 def make_demo_folder(directory: Path) -> Path:
@@ -25,6 +27,38 @@ def make_demo_folder(directory: Path) -> Path:
     return config_path
 
 
+def load_desk_view(cfg: Config, directory: Path, *, con) -> tuple[Path, object]:  # noqa: ANN001
+    """Write the treasury desk's weekly view (:mod:`pipeline.demo.desk_view`), drawn from the store's
+    built forwards and their outcomes, to ``directory / DESK_VIEW_FILE`` and load it as the contender
+    ``DESK_VIEW_NAME``; returns the file and its load outcome. Run after ``realize``."""
+    from flows.forecasts_step import load_forecasts
+    from pipeline.demo.desk_view import desk_view_csv, desk_view_forecasts
+    from warehouse.forecasts import forward_sample
+
+    path = directory / DESK_VIEW_FILE
+    path.parent.mkdir(parents=True, exist_ok=True)
+    path.write_bytes(desk_view_csv(desk_view_forecasts(forward_sample(con, DESK_VIEW_WEEKDAY))))
+    [outcome] = load_forecasts(cfg, [path], DESK_VIEW_NAME, units="percent", con=con)
+    return path, outcome
+
+
+HEADLINE = ("govt", 24, 12)  # the verdict the demo prints: the 1Y rate 2Y ahead on the government curve
+
+
+def _headline(compared) -> str:  # noqa: ANN001
+    """One verdict line of the comparison: :data:`HEADLINE`'s cell, else the first cell compared."""
+    curve, start, tenor = HEADLINE
+    for name, info in compared.curves.items():
+        v = info["verdicts"]
+        hit = v[(v["start_months"] == start) & (v["tenor_months"] == tenor)] if name == curve else v.iloc[:0]
+        if len(hit):
+            return f"{name} {hit['verdict'].iloc[0]}"
+    for name, info in compared.curves.items():
+        if len(info["verdicts"]):
+            return f"{name} {info['verdicts']['verdict'].iloc[0]}"
+    return "nothing to compare yet"
+
+
 def run_demo(directory: Path, console) -> None:  # noqa: ANN001
     """Write the demo market into ``directory`` and carry it through the whole job on one store,
     printing a line a step and where the config, store and report are."""
@@ -33,6 +67,7 @@ def run_demo(directory: Path, console) -> None:  # noqa: ANN001
     from flows.audit_step import run_audit
     from flows.build_step import run_build
     from flows.check_step import run_checks
+    from flows.compare_step import run_compare
     from flows.load_step import load_files, reader_process
     from flows.realize_step import run_realize
     from flows.report_step import write_report
@@ -81,6 +116,11 @@ def run_demo(directory: Path, console) -> None:  # noqa: ANN001
                 console.print(f"realize: {realized.realized:,} outcomes; {pending:,} forwards still pending")
                 rows = sum(len(f) for f in run_audit(cfg, con=con).values())
                 console.print(f"audit: {rows} horizon x regime rows in audit_summary; see 'afterward audit'")
+                desk_path, desk = load_desk_view(cfg, directory, con=con)
+                console.print(f"forecasts: {DESK_VIEW_NAME} ({desk.rows_accepted:,} weekly forecasts of the forward "
+                              f"grid) loaded from {desk_path}")
+                compared = run_compare(cfg, con=con)
+                console.print(f"compare: {_headline(compared)}", markup=False)
         finally:
             if reader is not None:
                 reader.shutdown(wait=True)
@@ -89,3 +129,4 @@ def run_demo(directory: Path, console) -> None:  # noqa: ANN001
     console.print(f"store:  {cfg.store_path}")
     console.print(f"report: {report}")
     console.print("try:    afterward --config " + str(config_path) + " audit --curve govt --start 1Y")
+    console.print("        afterward --config " + str(config_path) + " compare --curve govt --start 2Y")

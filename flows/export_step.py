@@ -51,6 +51,14 @@ EXPORT_VIEWS: dict[str, str | None] = {
     "outcomes": "as_of",
     "audit_summary": None,
     "term_premium": "as_of",
+    "term_panel": "as_of",
+    "excess_returns": "as_of",
+    "eh_regressions": None,
+    "model_term_premium": "as_of",
+    "contender_outcomes": "as_of",
+    "contender_scores": None,
+    "contender_tests": None,
+    "confidence_set": None,
 }
 
 

@@ -16,6 +16,7 @@ import signal
 import stat
 from collections.abc import Callable, Iterable, Sequence
 from concurrent.futures import ProcessPoolExecutor
+from datetime import datetime
 from pathlib import Path
 
 import duckdb
@@ -147,7 +148,7 @@ def _quiet_reader() -> None:
 
 def load_files(cfg: Config, paths: Iterable[Path], curve: str | None = None,
                on_file: Callable[[LoadOutcome], None] | None = None, chunk: int = 120,
-               read_ahead: bool | None = None, reprocess: bool = False, *,
+               read_ahead: bool | None = None, reprocess: bool = False, *, known_since: datetime | None = None,
                con: duckdb.DuckDBPyConnection | None = None,
                reader: ProcessPoolExecutor | None = None) -> list[LoadOutcome]:
     """Load each file in its own transaction; returns one outcome per file, in order.
@@ -157,7 +158,9 @@ def load_files(cfg: Config, paths: Iterable[Path], curve: str | None = None,
     while the store is open would inherit it, so none is made here when ``con`` is given).
 
     ``reprocess`` loads files whose content was already loaded into the same curve once more, as new
-    loads that say so (for a file read under a config since corrected).
+    loads that say so (for a file read under a config since corrected). ``known_since`` (naive UTC,
+    not after now) records when the files' data was first available, for history loaded later than
+    it was known; the load time stays recorded beside it (``as-known-at`` reads the earlier of them).
 
     Files are read and validated in chunks, then recorded one transaction per file through the one
     writer, so a failure part-way leaves every earlier file committed and the rest untouched. With
@@ -181,7 +184,7 @@ def load_files(cfg: Config, paths: Iterable[Path], curve: str | None = None,
         else:
             parts = (prepare_files(c, cfg, curve) for c in chunks)
         with writer_for(cfg.store_path, con) as con, one_thread(con):
-            loader = Loader(con)
+            loader = Loader(con, known_since)
             for items in parts:
                 loader.prefetch([i for i in items if isinstance(i, FileBatch)])
                 for item in items:

@@ -164,24 +164,114 @@ def print_audit(results: dict, fmt: str, console, start: int | None = None, teno
 
     main = allf.loc[allf["regime"] == "all"]
     t = Table(title="forecast error by horizon (forward minus realised, bp)")
-    for col in ("curve", "start", "tenor", "n", "mean", "HAC t", "RMSE", "no-change RMSE", "ratio", "DM p",
-                "MZ p", "FB beta", "hit rate"):
+    for col in ("curve", "start", "tenor", "n", "indep.", "mean", "HAC t", "HAC p", "RMSE", "no-change RMSE",
+                "ratio", "DM p", "MZ p", "FB beta", "hit rate"):
         t.add_column(col, justify="right" if col not in ("curve",) else "left")
 
     def num(v, fmt_: str = "{:.1f}") -> str:  # noqa: ANN001
         return "" if v is None or (isinstance(v, float) and not math.isfinite(v)) else fmt_.format(v)
 
     for _, r in main.iterrows():
+        flag = r.get("indicative")
+        indep = num(r.get("n_effective"), "{:,.1f}") + ("*" if flag is not None and not pd.isna(flag) and flag else "")
         t.add_row(r["curve"], _label(int(r["start_months"])), _label(int(r["tenor_months"])), f"{int(r['n']):,}",
-                  num(r["mean_error_bp"]), num(r["hac_t"], "{:.2f}"), num(r["rmse_bp"]), num(r["rw_rmse_bp"]),
-                  num(r["rmse_ratio"], "{:.2f}"), num(r["dm_pvalue"], "{:.3f}"), num(r["mz_pvalue"], "{:.3f}"),
+                  indep, num(r["mean_error_bp"]), num(r["hac_t"], "{:.2f}"), num(r.get("hac_pvalue"), "{:.3f}"),
+                  num(r["rmse_bp"]), num(r["rw_rmse_bp"]), num(r["rmse_ratio"], "{:.2f}"),
+                  num(r.get("dm_pvalue_fixed_b"), "{:.3f}"), num(r["mz_pvalue"], "{:.3f}"),
                   num(r["fb_beta"], "{:.2f}"), num(r["hit_rate"], "{:.0%}"))
     console.print(t)
     for _, r in main.iterrows():
         console.print(f"{r['curve']} {_label(int(r['start_months']))} x {_label(int(r['tenor_months']))}: "
                       f"{r['verdict']}")
-    console.print("Statistical findings for model validation, not investment advice; overlapping forecasts are "
-                  "accounted for with Newey-West standard errors.")
+    console.print("Statistical findings for model validation, not investment advice. Overlapping forecasts are "
+                  "accounted for with Newey-West standard errors and fixed-b p-values (HAC p, DM p); 'indep.' is "
+                  "n over the overlap, the independent forecast periods, and * marks fewer than 10: indicative "
+                  "only. The plain normal DM p is in --format csv / json and the audit_summary view.")
+
+
+def compare_rows(summary, start: int | None = None, tenor: int | None = None):  # noqa: ANN001, ANN201
+    """One row per (curve, start, tenor, contender): the scores with the confidence-set columns."""
+    import pandas as pd
+
+    frames = []
+    for info in summary.curves.values():
+        sc, mcs = info["scores"], info["confidence_set"]
+        if not len(sc):
+            continue
+        key = ["curve", "start_months", "tenor_months", "contender"]
+        frames.append(sc.merge(mcs, on=key, how="left") if len(mcs)
+                      else sc.assign(mcs_p_value=float("nan"), included=pd.NA))
+    if not frames:
+        return None
+    allf = pd.concat(frames, ignore_index=True)
+    if start is not None:
+        allf = allf.loc[allf["start_months"] == start]
+    if tenor is not None:
+        allf = allf.loc[allf["tenor_months"] == tenor]
+    return allf.reset_index(drop=True)
+
+
+def print_compare(summary, fmt: str, console, start: int | None = None, tenor: int | None = None) -> None:  # noqa: ANN001
+    """The contenders by horizon: a rich table per curve and a verdict line per cell, or CSV / JSON
+    (one row per curve, start, tenor and contender; the pairwise tests are in ``contender_tests``)."""
+    rows = compare_rows(summary, start, tenor)
+    if rows is None:
+        console.print("no outcomes to compare yet: run 'afterward build' and 'afterward realize' first")
+        return
+    if fmt in ("csv", "json"):
+        write_result(pa.Table.from_pandas(rows, preserve_index=False), fmt, None, console)
+        return
+    import pandas as pd
+    from rich.table import Table
+
+    def num(v, fmt_: str = "{:.1f}") -> str:  # noqa: ANN001
+        return "" if v is None or v is pd.NA or (isinstance(v, float) and not math.isfinite(v)) else fmt_.format(v)
+
+    for name, info in summary.curves.items():
+        part = rows.loc[rows["curve"] == name]
+        if part.empty:
+            continue
+        t = Table(title=f"{name}: contenders by horizon (forecast minus realised, bp; MCS at 10 %)")
+        for col in ("start", "tenor", "contender", "n", "n eff", "mean", "HAC t", "p (fixed-b)", "RMSE", "ratio",
+                    "MCS p", "in set"):
+            t.add_column(col, justify="left" if col == "contender" else "right")
+        for _, r in part.iterrows():
+            inc = r["included"]
+            t.add_row(_label(int(r["start_months"])), _label(int(r["tenor_months"])), str(r["contender"]),
+                      f"{int(r['n']):,}", num(r["n_effective"]) + (" *" if bool(r["indicative"]) else ""),
+                      num(r["mean_error_bp"]), num(r["hac_t"], "{:.2f}"), num(r["hac_p_value"], "{:.3f}"),
+                      num(r["rmse_bp"]), num(r["rmse_ratio"], "{:.2f}"), num(r["mcs_p_value"], "{:.3f}"),
+                      "" if inc is pd.NA or inc is None else ("yes" if bool(inc) else "no"))
+        console.print(t)
+        cells = set(zip(part["start_months"], part["tenor_months"], strict=True))
+        for _, v in info["verdicts"].iterrows():
+            if (v["start_months"], v["tenor_months"]) in cells:
+                console.print(f"{name}: {v['verdict']}", markup=False)
+        for contender, n in info["not_realised"].items():
+            console.print(f"{name}: {contender}: {n:,} forecasts not realised yet (pending, or a tenor the store "
+                          "does not hold)", markup=False)
+    console.print("* fewer than 10 non-overlapping periods: indicative only. Statistical findings for model "
+                  "validation, not investment advice; p-values use a fixed-b null that allows for overlapping "
+                  "forecasts.")
+
+
+def print_changes(rows, fmt: str, console, since) -> None:  # noqa: ANN001
+    """The changes since a time (:func:`flows.changes_step.change_rows`): a table, or CSV / JSON."""
+    if fmt in ("csv", "json"):
+        write_result(pa.Table.from_pandas(rows, preserve_index=False), fmt, None, console)
+        return
+    from rich.table import Table
+
+    if rows.empty:
+        console.print(f"nothing changed in the record since {since:%Y-%m-%d %H:%M:%S} UTC")
+        return
+    t = Table(title=f"changes since {since:%Y-%m-%d %H:%M:%S} UTC")
+    for col in ("kind", "curve", "as of", "item", "old", "new", "why"):
+        t.add_column(col)
+    for r in rows.itertuples(index=False):
+        day = "" if r.as_of is None or (isinstance(r.as_of, float) and math.isnan(r.as_of)) else str(r.as_of)[:10]
+        t.add_row(r.kind, r.curve, day, str(r.item), str(r.old), str(r.new), str(r.why))
+    console.print(t)
 
 
 def print_model(summary, console) -> None:  # noqa: ANN001

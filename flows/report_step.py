@@ -22,7 +22,9 @@ from warehouse import report as store
 from warehouse.connect import reader
 from warehouse.schema import schema_version
 
-__all__ = ["gather_report", "program_version", "report_path", "write_report"]
+__all__ = ["MODEL_PREMIUM_MONTHS", "gather_report", "program_version", "report_path", "write_report"]
+
+MODEL_PREMIUM_MONTHS = (24, 60, 120)  # the model term premium charted: 2, 5 and 10 years
 
 
 def program_version() -> str:
@@ -69,6 +71,7 @@ def _curve_report(con, cfg: Config, name: str, first: str | None, last: str | No
     premium_tenor = pairs[0][1] if pairs else None
     premium = store.premium(con, name, premium_tenor, first, last)
     window_days = int(premium["window_days"].iloc[0]) if len(premium) else c.premium_window_days
+    scores, mcs, verdicts, compared = store.comparison(con, name)
     return CurveReport(
         name=name, conventions=_conventions(c), tenors=c.tenor_labels, history=store.history(con, name, first, last),
         history_label=f"zero rate ({freq}, {c.day_count})",
@@ -79,6 +82,8 @@ def _curve_report(con, cfg: Config, name: str, first: str | None, last: str | No
         first_day=span[0] if span else None, last_day=span[1] if span else None,
         days_observed=int(span[2]) if span and span[2] is not None else 0,
         pending=store.pending(con, name, first, last), notes=tuple(notes),
+        contender_scores=scores, confidence_set=mcs, contender_verdicts=verdicts, compared=compared,
+        model_premium=store.model_premium(con, name, MODEL_PREMIUM_MONTHS, first, last),
     )
 
 
@@ -124,7 +129,8 @@ def _summary(con, cfg: Config, name: str, first: str | None, last: str | None  #
 
 
 def gather_report(cfg: Config, curve: str | None = None, first: str | None = None,
-                  last: str | None = None, *, now: datetime | None = None) -> ReportData:
+                  last: str | None = None, *, now: datetime | None = None,
+                  as_known_at: datetime | None = None) -> ReportData:
     """Everything the report shows, read from the store on one read-only connection."""
     names = [curve] if curve else list(cfg.curves)
     generated = now or datetime.now(UTC)
@@ -141,7 +147,8 @@ def gather_report(cfg: Config, curve: str | None = None, first: str | None = Non
     return ReportData(
         generated_at=generated, program_version=program_version(), schema_version=schema, curves=curves,
         store_path=str(cfg.store_path), config_path=str(cfg.path) if cfg.path else "",
-        window=(first, last), loads=loads, builds=builds, findings=findings, held=held, rejected_rows=rejected,
+        window=(first, last), as_known_at=as_known_at, loads=loads, builds=builds, findings=findings, held=held,
+        rejected_rows=rejected,
     )
 
 
@@ -160,13 +167,15 @@ def report_path(cfg: Config, out: Path | None, curve: str | None, generated: dat
 
 
 def write_report(cfg: Config, out: Path | None = None, curve: str | None = None, first: str | None = None,
-                 last: str | None = None) -> Path:
+                 last: str | None = None, *, as_known_at: datetime | None = None) -> Path:
     """Write the self-contained HTML audit report and return its path.
 
     ``out``: the folder (default ``reports/`` beside the config file, created if needed);
-    ``curve``: one curve, or all; ``first`` / ``last``: ISO as-of dates bounding what is shown.
+    ``curve``: one curve, or all; ``first`` / ``last``: ISO as-of dates bounding what is shown;
+    ``as_known_at``: the time the store ``cfg`` names was reconstructed as of (a scratch copy made by
+    :mod:`flows.known_at_step`), said at the top of the page.
     """
-    data = gather_report(cfg, curve, first, last)
+    data = gather_report(cfg, curve, first, last, as_known_at=as_known_at)
     page = render_report(data)
     path = report_path(cfg, out, curve, data.generated_at)
     path.parent.mkdir(parents=True, exist_ok=True)

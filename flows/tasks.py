@@ -21,6 +21,7 @@ from prefect.cache_policies import NO_CACHE
 from flows import audit_step
 from flows.build_step import BuildSummary, run_build
 from flows.check_step import CheckSummary, note_late_curves, run_checks
+from flows.compare_step import CompareSummary, run_compare
 from flows.inbox import PATIENCE_SECONDS, SETTLE_SECONDS, file_away, stable_files
 from flows.load_step import load_files
 from flows.model_step import ModelSummary, run_model
@@ -32,7 +33,8 @@ from warehouse.connect import connect
 from warehouse.loads import LoadOutcome
 
 __all__ = ["RETRY", "RETRY_DELAYS", "build_days", "check_quotes", "file_away_task", "is_retryable", "load_new_files",
-           "note_late", "read_audit_record", "realize_forwards", "refresh_audit", "refresh_model", "run_store",
+           "note_late", "read_audit_record", "realize_forwards", "refresh_audit", "refresh_compare", "refresh_model",
+           "run_store",
            "scan_inbox", "settle_build", "store_audit"]
 
 # what a task retries on: a store locked by another process, or the disk / network
@@ -197,4 +199,19 @@ def refresh_model(cfg: Config, con: Con, curves: list[str]) -> ModelSummary:
         out.curves.update(done.curves)
         info = done.curves[name]
         log.info("model %s: %d month ends, estimated through %s", name, info["months"], info["latest_through"])
+    return out
+
+
+@task(name="compare", cache_policy=NO_CACHE, **RETRY)
+def refresh_compare(cfg: Config, con: Con, curves: list[str]) -> CompareSummary:
+    """Recompute the contender comparison of ``curves`` (those :func:`flows.compare_step.compare_due`
+    names: outcomes, model estimate, what-if builds or user forecasts changed since the last one).
+    The confidence set is a bootstrap over a cell's whole sample, so a curve is recomputed whole."""
+    out = CompareSummary()
+    log = get_run_logger()
+    for name in curves:
+        done = run_compare(cfg, name, con=con)
+        out.curves.update(done.curves)
+        info = done.curves[name]
+        log.info("compare %s: %d contenders over %d cells", name, len(info["contenders"]), info["cells"])
     return out

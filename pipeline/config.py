@@ -82,6 +82,7 @@ class CurveConfig:
     read: ReadOptions = field(default_factory=ReadOptions)
     model_max_months: int = DEFAULT_MAX_MONTHS   # model.max_months: the panel's longest maturity (months)
     model_factors: int = DEFAULT_FACTORS         # model.factors: principal components in the ACM state
+    compare_min_history: int = 60                # compare.min_history: outcomes known before premium_adjusted
 
     @property
     def frequency_per_year(self) -> int | None:
@@ -259,7 +260,7 @@ def _parse_curve(name: str, t: dict[str, Any], base: Path) -> CurveConfig:
     allowed = {
         "files", "quote", "compounding", "day_count", "units", "interpolation", "tenors", "frequency",
         "calendar", "forward", "realize", "checks", "date_format", "audit", "spot_days", "coupon_frequency",
-        "read", "model",
+        "read", "model", "compare",
     }
     _check_keys(t, allowed, w)
     if "tenors" not in t:
@@ -340,6 +341,12 @@ def _parse_curve(name: str, t: dict[str, Any], base: Path) -> CurveConfig:
     _check_keys(aud, {"premium_window_days"}, f"{w}audit.")
     window = _number(aud, "premium_window_days", 250, f"{w}audit.", integer=True, minimum=2)
 
+    cmp_ = t.get("compare", {})
+    if not isinstance(cmp_, dict):
+        raise ConfigError(f"{w}compare must be a table with min_history")
+    _check_keys(cmp_, {"min_history"}, f"{w}compare.")
+    min_history = _number(cmp_, "min_history", 60, f"{w}compare.", integer=True, minimum=1)
+
     read = _read_options(t.get("read", {}), f"{w}read")
     max_months, factors = _model(t.get("model", {}), f"{w}model.")
     quote = _choice(t, "quote", QUOTE_KINDS, "zero", w)
@@ -381,6 +388,7 @@ def _parse_curve(name: str, t: dict[str, Any], base: Path) -> CurveConfig:
         read=read,
         model_max_months=max_months,
         model_factors=factors,
+        compare_min_history=min_history,
     )
 
 

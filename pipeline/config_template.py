@@ -47,4 +47,6 @@ checks.inversion_pairs = [["3M", "10Y"], ["2Y", "10Y"]]
 model.max_months = 120               # afterward model: month-end panel up to this maturity (24 .. 600 months;
                                      # at most the longest quoted tenor)
 model.factors = 5                    # principal components in the term-premium model's state (1 .. 10)
+compare.min_history = 60             # afterward compare: outcomes known on the as-of date before the
+                                     # premium-adjusted forward is offered
 '''

@@ -9,6 +9,8 @@ exit status for it: 2 for bad usage or a bad config, 1 for everything else.
     ├── UserError          a request that cannot be carried out (a missing file) exit 1
     ├── ModelInputError    data or settings the term-structure model cannot use  exit 2
     │                      (pipeline.term_structure.errors)
+    ├── ForecastRequestError  a forecast load refused before anything changed    exit 2
+    ├── KnownAtError       an --as-known-at / --known-since time that cannot be used exit 2
     └── StoreError         the store cannot be used as asked                     exit 1
         ├── StoreLocked    another process holds its write lock
         ├── StoreMissing   no store at the configured path
@@ -17,7 +19,8 @@ exit status for it: 2 for bad usage or a bad config, 1 for everything else.
 
 from __future__ import annotations
 
-__all__ = ["AfterwardError", "ConfigError", "RunInProgress", "StoreError", "StoreLocked", "StoreMissing",
+__all__ = ["AfterwardError", "ConfigError", "ForecastRequestError", "KnownAtError", "RunInProgress",
+           "StoreError", "StoreLocked", "StoreMissing",
            "TenorError", "UserError"]
 
 
@@ -41,6 +44,20 @@ class TenorError(AfterwardError, ValueError):
 
 class UserError(AfterwardError, RuntimeError):
     """A request that cannot be carried out as asked (a missing or unreadable file, say)."""
+
+
+class ForecastRequestError(AfterwardError):
+    """A forecast load that cannot be carried out as asked (a bad name, curve, units or file): nothing
+    is changed."""
+
+    exit_code = 2
+
+
+class KnownAtError(AfterwardError, ValueError):
+    """A time for ``--as-known-at`` or ``--known-since`` that is malformed, in the future or before
+    the first load."""
+
+    exit_code = 2
 
 
 class StoreError(AfterwardError, RuntimeError):

@@ -51,6 +51,30 @@ CREATE OR REPLACE VIEW rejected_rows AS
 SELECT load_id, source_file, line, raw, reason
 FROM rejected_row;
 
+-- one row per (curve, contender, as_of, start_months, tenor_months): the current version of each user
+-- forecast (`afterward forecasts load`); forecast_rate decimal, a zero rate in the curve's own compounding
+CREATE OR REPLACE VIEW forecasts AS
+SELECT curve, contender, as_of, start_months, tenor_months, forecast_rate, recorded_at, source_file
+FROM forecast_version
+WHERE superseded_at IS NULL;
+
+-- one row per (curve, contender, as_of, start_months, tenor_months, version): every user forecast ever
+-- loaded; superseded_at NULL while current
+CREATE OR REPLACE VIEW forecast_history AS
+SELECT curve, contender, as_of, start_months, tenor_months, forecast_rate, recorded_at, superseded_at, source_file
+FROM forecast_version;
+
+-- one row per forecast-file load attempt; curve: the curves its rows went to; units NULL: each curve's own
+CREATE OR REPLACE VIEW forecast_loads AS
+SELECT load_id, contender, source_file, sha256, curve, units, started_at, finished_at, rows_read, rows_accepted,
+       rows_revised, rows_rejected, status, detail
+FROM forecast_load;
+
+-- one row per rejected forecast-file row (line 0 = the whole file could not be read)
+CREATE OR REPLACE VIEW forecast_rejected_rows AS
+SELECT load_id, source_file, line, raw, reason, check_name
+FROM forecast_rejected_row;
+
 -- one row per acceptance still in force: no quote version of its day recorded after it was given
 CREATE OR REPLACE VIEW acceptance_in_force AS
 SELECT a.curve, a.as_of, a.accepted_by, a.accepted_at, a.note AS reason
@@ -124,11 +148,14 @@ WHERE NOT EXISTS (SELECT 1 FROM outcome o
                   WHERE o.superseded_at IS NULL AND o.curve = f.curve AND o.as_of = f.as_of
                     AND o.start_months = f.start_months AND o.tenor_months = f.tenor_months);
 
--- one row per (curve, start_months, tenor_months, regime)
+-- one row per (curve, start_months, tenor_months, regime); after the contract's columns, the overlap-honest
+-- ones: n_effective = n / h (non-overlapping forecast periods), hac_pvalue and dm_pvalue_fixed_b (fixed-b
+-- p-values of hac_t and of the DM statistic before its HLN factor; dm_pvalue stays the plain figure) and
+-- indicative (n_effective < 10)
 CREATE OR REPLACE VIEW audit_summary AS
 SELECT curve, start_months, tenor_months, regime, n, first_as_of, last_as_of, mean_error_bp, rmse_bp, mae_bp,
        hac_t, rw_rmse_bp, rmse_ratio, dm_stat, dm_pvalue, mz_alpha, mz_beta, mz_pvalue, fb_beta, fb_beta_se,
-       fb_r2, hit_rate
+       fb_r2, hit_rate, n_effective, hac_pvalue, dm_pvalue_fixed_b, indicative
 FROM audit_result;
 
 -- one row per (curve, as_of, start_months, tenor_months)
@@ -160,3 +187,29 @@ FROM eh_regression_result;
 CREATE OR REPLACE VIEW model_term_premium AS
 SELECT curve, as_of, maturity_months, fit, model_yield, risk_neutral_yield, term_premium, estimated_through
 FROM model_term_premium_point;
+
+-- one row per (curve, contender, as_of, start_months, tenor_months): every contender's realised
+-- forecast of the zero rate for the tenor on the target date (decimals; error_bp in bp)
+CREATE OR REPLACE VIEW contender_outcomes AS
+SELECT curve, contender, as_of, start_months, tenor_months, target_date, observed_on, forecast_rate, realized_rate,
+       error_bp
+FROM contender_outcome;
+
+-- one row per (curve, contender, start_months, tenor_months): scores on the cell's common sample;
+-- n_effective = n / h, indicative when it is below 10
+CREATE OR REPLACE VIEW contender_scores AS
+SELECT curve, contender, start_months, tenor_months, n, n_effective, mean_error_bp, hac_t, rmse_bp, mae_bp,
+       rmse_ratio, indicative
+FROM contender_score;
+
+-- one row per (curve, start_months, tenor_months, contender_a, contender_b, test): dm (HLN),
+-- clark_west (one-sided, contender_a nested in contender_b) or gw (conditional, chi-square q = 2)
+CREATE OR REPLACE VIEW contender_tests AS
+SELECT curve, start_months, tenor_months, contender_a, contender_b, test, statistic, p_value, n
+FROM contender_test;
+
+-- one row per (curve, start_months, tenor_months, contender): Model Confidence Set p-value and
+-- membership at 10 %
+CREATE OR REPLACE VIEW confidence_set AS
+SELECT curve, start_months, tenor_months, contender, mcs_p_value, included
+FROM confidence_set_result;

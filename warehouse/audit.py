@@ -15,7 +15,8 @@ from pipeline.audit.state import TAIL_COLUMNS, CellState
 from warehouse.frames import read_frame
 from warehouse.query import fetch_one
 
-__all__ = ["cells_sql", "drop_state", "new_outcome_span", "outcomes_seen", "read_outcomes", "read_state",
+__all__ = ["audit_version_at", "cells_sql", "drop_state", "record_run",
+           "new_outcome_span", "outcomes_seen", "read_outcomes", "read_state",
            "read_summary", "state_meta", "write_results", "write_state"]
 
 _INT_FIELDS = {"n", "horizon", "lags", "premium_lags", "n_moved", "n_hit", "band_below", "band_above"}
@@ -223,3 +224,16 @@ def write_state(con, curve: str, states: dict[tuple, tuple[CellState, dict]], me
     fmt, window, pair, seen_realized, seen_superseded, n_current, version, now = meta
     con.execute("INSERT INTO audit_state_curve VALUES (?, ?, ?, ?, ?, ?, ?, ?, ?)",
                 [curve, fmt, window, pair, seen_realized, seen_superseded, int(n_current), version, now])
+
+
+def record_run(con, curve: str, computed_at, mode: str, code_version: str) -> None:  # noqa: ANN001
+    """Note an audit of ``curve`` stored at ``computed_at`` (``full`` or ``incremental``) and the program
+    version that computed it (``audit_run``, sql/015)."""
+    con.execute("INSERT INTO audit_run VALUES (?, ?, ?, ?)", [curve, computed_at, mode, code_version])
+
+
+def audit_version_at(con, ts) -> str | None:  # noqa: ANN001
+    """The program version of the latest audit stored at or before ``ts`` (None when none was)."""
+    row = fetch_one(con, "SELECT code_version FROM audit_run WHERE computed_at <= ? ORDER BY computed_at DESC LIMIT 1",
+                    [ts])
+    return row[0] if row else None

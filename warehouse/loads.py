@@ -161,8 +161,9 @@ class LoadOutcome:
 class Loader:
     """Records files through one writer connection (see the module docstring)."""
 
-    def __init__(self, con: duckdb.DuckDBPyConnection) -> None:
+    def __init__(self, con: duckdb.DuckDBPyConnection, known_since: datetime | None = None) -> None:
         self.con = con
+        self.known_since = known_since  # when the files' data was first available (None: the load time)
         # current rate by key (day number << 20 | tenor code), one dict per curve
         self._current: dict[str, dict[int, float]] = {}
         # the span of day numbers (inclusive) whose current quotes have been read, per curve: a daily file
@@ -302,10 +303,10 @@ class Loader:
                             "NULL, NULL FROM raised", [started, load_id])
             # the log row goes in last, so its finished_at is the moment just before the commit
             con.execute(
-                "INSERT INTO load_log VALUES (?, ?, ?, ?, ?, ?, ?, ?, ?, ?, ?, ?, ?, ?, ?, ?, ?)",
+                "INSERT INTO load_log VALUES (?, ?, ?, ?, ?, ?, ?, ?, ?, ?, ?, ?, ?, ?, ?, ?, ?, ?)",
                 [load_id, batch.source_file, batch.file_name, batch.sha256, batch.size_bytes,
                  lineage or None, batch.layout, started, utc_now(), n_rows + n_rej, n_rows,
-                 revised, n_rows - new - revised, n_rej, status, note, batch.validation_json],
+                 revised, n_rows - new - revised, n_rej, status, note, batch.validation_json, self.known_since],
             )
             con.execute("COMMIT")
         except BaseException:

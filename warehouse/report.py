@@ -10,8 +10,9 @@ import pandas as pd
 from warehouse.frames import read_frame
 from warehouse.query import fetch_one
 
-__all__ = ["curve_span", "episodes", "findings_in_scope", "history", "loads_in_scope", "official_builds",
-           "outcome_pairs", "outcome_version", "pending", "premium", "rejected_in_scope", "stored_summary"]
+__all__ = ["comparison", "curve_span", "episodes", "findings_in_scope", "history", "loads_in_scope", "model_premium",
+           "official_builds", "outcome_pairs", "outcome_version", "pending", "premium", "rejected_in_scope",
+           "stored_summary"]
 
 Con = duckdb.DuckDBPyConnection
 
@@ -144,3 +145,28 @@ def rejected_in_scope(con: Con, curves: list[str]) -> pd.DataFrame:
     return read_frame(con, "SELECT r.load_id, l.file_name, r.line, r.raw, r.reason FROM rejected_rows r "
                            f"JOIN load_log l USING (load_id) WHERE l.curve IN ({ph}) OR l.curve IS NULL "
                            "ORDER BY r.load_id, r.line", curves)
+
+
+def comparison(con: Con, curve: str) -> tuple[pd.DataFrame, pd.DataFrame, pd.DataFrame, tuple | None]:
+    """The curve's stored contender comparison: scores (with ``h``, ``hac_p_value``), the confidence
+    set, the verdict lines, and (computed_at, first_as_of, last_as_of) of the ``compare_run``."""
+    scores = read_frame(con, "SELECT * FROM contender_score WHERE curve = ? ORDER BY start_months, tenor_months, "
+                             "contender", [curve])
+    mcs = read_frame(con, "SELECT * FROM confidence_set WHERE curve = ? ORDER BY start_months, tenor_months, "
+                          "contender", [curve])
+    verdicts = read_frame(con, "SELECT start_months, tenor_months, verdict FROM contender_verdict WHERE curve = ? "
+                               "ORDER BY start_months, tenor_months", [curve])
+    run = fetch_one(con, "SELECT computed_at, first_as_of, last_as_of FROM compare_run WHERE curve = ?", [curve])
+    return scores, mcs, verdicts, run
+
+
+def model_premium(con: Con, curve: str, months: tuple[int, ...], first: str | None, last: str | None) -> pd.DataFrame:
+    """as_of, maturity_months, term_premium (decimal): the model's real-time term premium at ``months``
+    in the window, month ends only (the days between carry the same estimate)."""
+    w, wp = _window("p.as_of", first, last)
+    return read_frame(con, f"""SELECT p.as_of, p.maturity_months, p.term_premium FROM model_term_premium p
+                               JOIN term_panel t ON t.curve = p.curve AND t.as_of = p.as_of
+                                                AND t.maturity_months = p.maturity_months
+                               WHERE p.curve = ? AND p.fit = 'realtime'
+                                 AND p.maturity_months IN ({', '.join(str(int(m)) for m in months)}){w}
+                               ORDER BY p.as_of, p.maturity_months""", [curve, *wp])

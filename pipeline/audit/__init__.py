@@ -3,21 +3,25 @@
 * :mod:`pipeline.audit.statistics`: the reference computation over a whole record (``summarize``,
   ``term_premium``, ``verdict``);
 * :mod:`pipeline.audit.hac`: the Newey-West / Diebold-Mariano kernels on plain arrays;
+* :mod:`pipeline.audit.fixed_b`: the overlap-aware fixed-b null of those t statistics;
 * :mod:`pipeline.audit.state`: a cell's running state, built once and appended to;
 * :mod:`pipeline.audit.refresh`: the whole-record audit and the incremental fold, on frames.
 """
 
 from pipeline.audit.statistics import (
+    INDICATIVE_BELOW,
     MIN_OBS,
+    OVERLAP_COLUMNS,
     SUMMARY_COLUMNS,
     TERM_PREMIUM_COLUMNS,
     TIE,
     Z95,
     overlap_horizon,
+    overlap_inference,
     summarize,
     term_premium,
     verdict,
 )
 
-__all__ = ["MIN_OBS", "SUMMARY_COLUMNS", "TERM_PREMIUM_COLUMNS", "TIE", "Z95", "overlap_horizon", "summarize",
-           "term_premium", "verdict"]
+__all__ = ["INDICATIVE_BELOW", "MIN_OBS", "OVERLAP_COLUMNS", "SUMMARY_COLUMNS", "TERM_PREMIUM_COLUMNS", "TIE", "Z95",
+           "overlap_horizon", "overlap_inference", "summarize", "term_premium", "verdict"]

@@ -99,6 +99,7 @@ def summary_rows(curve: str, states: States) -> pd.DataFrame:
     out = pd.DataFrame(rows, columns=list(SUMMARY_COLUMNS))
     out["n"] = out["n"].astype(np.int64)
     out["lags"] = out["lags"].astype(np.int64)
+    out["indicative"] = out["indicative"].astype(bool)
     return out
 
 

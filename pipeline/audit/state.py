@@ -53,7 +53,7 @@ import numpy as np
 from scipy import special
 
 from pipeline.audit.hac import hln_factor, rolling_mean_hac_se
-from pipeline.audit.statistics import MIN_OBS, TIE
+from pipeline.audit.statistics import MIN_OBS, TIE, overlap_inference
 from pipeline.dates import as_days
 
 __all__ = [
@@ -481,7 +481,8 @@ def _hac_of(state: CellState, col: int, mean: float) -> float:
 
 def cell_summary(state: CellState) -> dict[str, Any]:
     """The statistics of :func:`pipeline.audit.summarize` for this cell (its keys after the grouping
-    columns): n, dates, mean, median, std, RMSE, MAE, HAC t, DM, MZ, FB, hit rate."""
+    columns): n, dates, mean, median, std, RMSE, MAE, HAC t, DM, MZ, FB, hit rate and the overlap figures
+    (:func:`pipeline.audit.statistics.overlap_inference`)."""
     n, h, L = state.n, state.horizon, state.lags
     rmse = float(np.sqrt(state.sum_e2 / n))
     rw_rmse = float(np.sqrt(state.sum_u2 / n))
@@ -498,6 +499,7 @@ def cell_summary(state: CellState) -> dict[str, Any]:
         "hit_rate": state.n_hit / state.n_moved if state.n_moved else _NAN,
     }
     if n < MIN_OBS or h >= n or state.max_e - state.min_e <= TIE * 1e4:
+        out.update(overlap_inference(n, h, _NAN, _NAN))
         return out
     mean = state.mean_e
     se = _hac_of(state, _E, float(state.sums[_E] / n))  # the centred errors' mean
@@ -523,6 +525,7 @@ def cell_summary(state: CellState) -> dict[str, Any]:
         ssr = (state.sum_v2 - 2 * a * s[_V] - 2 * b * s[_SV] + n * a * a + 2 * a * b * s[_S] + b * b * s[_SS])
         out["fb_beta"], out["fb_beta_se"] = float(b), float(np.sqrt(cov[1, 1]))
         out["fb_r2"] = 1.0 - ssr / state.m2_v if state.m2_v > 0 else _NAN
+    out.update(overlap_inference(n, h, out["hac_t"], out["dm_stat"]))
     return out
 
 

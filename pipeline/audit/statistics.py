@@ -20,6 +20,14 @@ Choices made here (the contract leaves them open):
   statistic times ``sqrt((n + 1 - 2h + h(h-1)/n)/n)``, two-sided p-value from Student's t with
   ``n - 1`` degrees of freedom. Negative ``dm_stat``: the forwards had the smaller squared error.
   With forwards identical to the spot (start 0) the loss differential is zero and DM is NaN.
+* **Overlap-honest inference** (:func:`overlap_inference`). ``n_effective = n / h`` is the number of
+  non-overlapping forecast periods the sample holds; ``indicative`` is ``n_effective < 10``. The
+  Bartlett HAC t with ``h - 1`` lags over-rejects at heavy overlap, so beside the plain figures
+  (``dm_pvalue``, and ``hac_t`` read against the normal) there are fixed-b p-values from the
+  overlap-aware null of :mod:`pipeline.audit.fixed_b`: ``hac_pvalue`` of ``hac_t``, and
+  ``dm_pvalue_fixed_b`` of the DM statistic *before* the HLN factor (``dm_stat / hln_factor(n, h)``:
+  the null is that of the Bartlett t itself, and the factor is a small-sample correction of the
+  normal reference that the fixed-b null already makes). The verdict judges significance by these.
 * **Mincer-Zarnowitz** ``realized = a + b * forward`` (decimals; ``mz_alpha`` is a decimal rate),
   ``mz_pvalue`` is the chi-square(2) Wald test of ``a = 0, b = 1`` with the HAC covariance.
   **Fama-Bliss** ``realized - spot = a + b * (forward - spot)``; ``fb_beta_se`` is HAC, ``fb_r2`` the
@@ -41,14 +49,18 @@ import numpy as np
 import pandas as pd
 from scipy import stats
 
-from pipeline.audit.hac import diebold_mariano, hac_mean, hac_ols, rolling_mean_hac_se, wald_pvalue
+from pipeline.audit.fixed_b import pvalue_two_sided
+from pipeline.audit.hac import diebold_mariano, hac_mean, hac_ols, hln_factor, rolling_mean_hac_se, wald_pvalue
 from pipeline.dates import as_days
 
 __all__ = [
+    "INDICATIVE_BELOW",
     "MIN_OBS",
+    "OVERLAP_COLUMNS",
     "SUMMARY_COLUMNS",
     "TERM_PREMIUM_COLUMNS",
     "overlap_horizon",
+    "overlap_inference",
     "summarize",
     "term_premium",
     "verdict",
@@ -57,12 +69,16 @@ __all__ = [
 MIN_OBS = 8
 TIE = 1e-12  # decimals: a forward-spot or realised-spot difference below this is rounding noise
 Z95 = float(stats.norm.ppf(0.975))
+INDICATIVE_BELOW = 10.0  # non-overlapping forecast periods: with fewer, a cell's figures are indicative only
+
+# appended after the contract's columns (sql/014 adds them to the stored result)
+OVERLAP_COLUMNS = ("n_effective", "hac_pvalue", "dm_pvalue_fixed_b", "indicative")
 
 SUMMARY_COLUMNS = (
     "curve", "start_months", "tenor_months", "regime", "n", "first_as_of", "last_as_of",
     "mean_error_bp", "median_error_bp", "std_error_bp", "rmse_bp", "mae_bp", "hac_t", "hac_se_bp",
     "lags", "rw_rmse_bp", "rmse_ratio", "dm_stat", "dm_pvalue", "mz_alpha", "mz_beta", "mz_pvalue",
-    "fb_beta", "fb_beta_se", "fb_r2", "hit_rate",
+    "fb_beta", "fb_beta_se", "fb_r2", "hit_rate", *OVERLAP_COLUMNS,
 )
 TERM_PREMIUM_COLUMNS = (
     "curve", "as_of", "start_months", "tenor_months", "window_days", "premium_bp", "lower_bp", "upper_bp",
@@ -97,6 +113,28 @@ def overlap_horizon(as_of: np.ndarray, target_date: np.ndarray) -> int:
         beyond = np.maximum((t - dates[-1]).astype(np.int64), 0)
         count += beyond / spacing
     return max(int(np.floor(np.median(count) + 0.5)), 1)
+
+
+def overlap_inference(n: int, h: int, hac_t: float, dm_stat: float) -> dict[str, Any]:
+    """The overlap-honest figures of a cell of ``n`` outcomes with overlap horizon ``h``.
+
+    ``n_effective = n / h`` (non-overlapping forecast periods), ``hac_pvalue`` the two-sided fixed-b
+    p-value of ``hac_t`` and ``dm_pvalue_fixed_b`` that of the Diebold-Mariano statistic with its
+    HLN factor taken out again (``dm_stat / hln_factor(n, h)``, the Bartlett HAC t of the loss
+    differential), both from :func:`pipeline.audit.fixed_b.pvalue_two_sided` (NaN where the
+    statistic is NaN or the overlap is beyond its table, ``h / n > 0.9``); ``indicative`` is
+    ``n_effective < INDICATIVE_BELOW``.
+    """
+    n, h = int(n), max(int(h), 1)
+    n_eff = n / h
+    hac_p = pvalue_two_sided(float(hac_t), n, h) if _finite(hac_t) else _NAN
+    dm_p = _NAN
+    if _finite(dm_stat):
+        k = hln_factor(n, h)
+        if np.isfinite(k) and k > 0:
+            dm_p = pvalue_two_sided(float(dm_stat) / k, n, h)
+    return {"n_effective": float(n_eff), "hac_pvalue": float(hac_p), "dm_pvalue_fixed_b": float(dm_p),
+            "indicative": bool(n_eff < INDICATIVE_BELOW)}
 
 
 def _sign(x: np.ndarray) -> np.ndarray:
@@ -138,6 +176,7 @@ def _stats(as_of, target, fwd, real, spot, err, rw) -> dict[str, Any]:
     }
     if n < MIN_OBS or h >= n or np.ptp(err) <= TIE * 1e4:
         # too few outcomes, or errors without variation (start 0: the forward is the spot itself)
+        out.update(overlap_inference(n, h, _NAN, _NAN))
         return out
     mean, se = hac_mean(err, lags)
     out["hac_se_bp"] = se
@@ -153,6 +192,7 @@ def _stats(as_of, target, fwd, real, spot, err, rw) -> dict[str, Any]:
     if np.ptp(spread) > TIE:
         params, cov, r2 = hac_ols(real - spot, np.column_stack([ones, spread]), lags)
         out["fb_beta"], out["fb_beta_se"], out["fb_r2"] = float(params[1]), float(np.sqrt(cov[1, 1])), r2
+    out.update(overlap_inference(n, h, out["hac_t"], out["dm_stat"]))
     return out
 
 
@@ -237,6 +277,7 @@ def summarize(outcomes: pd.DataFrame, *, first: object = None, last: object = No
     out = pd.DataFrame(rows, columns=list(SUMMARY_COLUMNS))
     out["n"] = out["n"].astype(np.int64)
     out["lags"] = out["lags"].astype(np.int64)
+    out["indicative"] = out["indicative"].astype(bool)
     return out
 
 
@@ -304,39 +345,84 @@ def _finite(x: object) -> bool:
         return False
 
 
+def _p_text(p: float) -> str:
+    # beyond p = 0.001 the fixed-b tail is an extrapolation of its table: no more digits are shown
+    if p < 0.001:
+        return "< 0.001"
+    return f"= {p:.2g}" if p < 0.05 else f"= {p:.2f}"
+
+
+def _sample_text(row: Mapping[str, Any], n: int) -> tuple[str, bool]:
+    """(``n = 489, about 2 independent periods`` (``no overlap`` when h = 1), whether the row is
+    indicative only: fewer than :data:`INDICATIVE_BELOW` periods); ``n = 489`` alone and False for
+    a row without ``n_effective``."""
+    n_eff = row.get("n_effective", _NAN)
+    text = f"n = {n:,}"
+    if not _finite(n_eff):
+        return text, False
+    k = float(n_eff)
+    indicative = row.get("indicative")
+    if indicative is None or pd.isna(indicative):
+        indicative = k < INDICATIVE_BELOW
+    r = int(np.floor(k + 0.5))
+    if k >= n:
+        text += ", no overlap"
+    elif k < 0.5:
+        text += ", less than one independent period"
+    elif indicative and r >= INDICATIVE_BELOW:  # 9.6 rounds to 10: do not print "about 10" beside the flag
+        text += f", fewer than {INDICATIVE_BELOW:g} independent periods"
+    else:
+        text += f", about {r:,} independent period" + ("s" if r != 1 else "")
+    return text, bool(indicative)
+
+
 def verdict(row: Mapping[str, Any] | pd.Series) -> str:
     """One plain-language line for a row of :func:`summarize`: a statistical finding, not advice.
 
     Example: ``"forwards over-predicted the realised 1Y rate 2Y ahead by 85.0 bp on average
-    (HAC t = 3.1, n = 4,800); no better than no-change (DM p = 0.31, RMSE ratio 0.98)"``.
-    Significance is judged at 5 % (|t| >= 1.96, p < 0.05).
+    (HAC t = 3.1, fixed-b p = 0.004, n = 4,800, about 19 independent periods); no better than
+    no-change (DM fixed-b p = 0.31, RMSE ratio 0.98)"``. Significance is judged at 5 % by the
+    fixed-b p-values (``hac_pvalue``, ``dm_pvalue_fixed_b``), not the normal ones; with fewer than
+    :data:`INDICATIVE_BELOW` independent periods the line says "indicative only".
     """
     start, tenor = int(row["start_months"]), int(row["tenor_months"])
     what = f"the realised {_label(tenor)} rate " + (f"{_label(start)} ahead" if start else "at the as-of date")
     mean = float(row["mean_error_bp"])
     n = int(row["n"])
+    sample, indicative = _sample_text(row, n)
     direction = "over-predicted" if mean > 0 else "under-predicted" if mean < 0 else "matched"
     bias = f"forwards {direction} {what}" + (f" by {abs(mean):.1f} bp on average" if mean else " on average")
-    t, std = row["hac_t"], row["std_error_bp"]
-    if _finite(t):
-        bias += f" (HAC t = {float(t):.1f}, n = {n:,}"
-        bias += ")" if abs(float(t)) >= 1.96 else "; not significant at 5 %)"
+    t, std, hp = row["hac_t"], row["std_error_bp"], row.get("hac_pvalue", _NAN)
+    notes = []
+    if _finite(t) and _finite(hp):
+        figures = f"HAC t = {float(t):.1f}, fixed-b p {_p_text(float(hp))}, {sample}"
+        if float(hp) >= 0.05:
+            notes.append("not significant at 5 %")
+    elif _finite(t):
+        figures = f"HAC t = {float(t):.1f}, {sample}"
+        notes.append("too few independent periods for a test")
     elif _finite(std) and float(std) <= TIE * 1e4:
-        bias += f" (n = {n:,}, every error the same)"
+        figures = f"{sample}, every error the same"
     else:
-        bias += f" (n = {n:,}, too few outcomes for a HAC test)"
+        figures = f"{sample}, too few outcomes for a HAC test"
+    if indicative:
+        notes.append("indicative only")
+    bias += f" ({'; '.join([figures, *notes])})"
     regime = str(row.get("regime", "all"))
     if regime != "all":
         bias = f"{regime} curves: {bias}"
-    p, dm, ratio = row["dm_pvalue"], row["dm_stat"], row["rmse_ratio"]
+    p, dm, ratio = row.get("dm_pvalue_fixed_b", _NAN), row["dm_stat"], row["rmse_ratio"]
     rtxt = f", RMSE ratio {float(ratio):.2f}" if _finite(ratio) else ""
     if _finite(p) and _finite(dm):
+        ptxt = f"DM fixed-b p {_p_text(float(p))}{rtxt}"
         if float(p) < 0.05 and float(dm) < 0:
-            comp = f"more accurate than no-change (DM p = {float(p):.2g}{rtxt})"
+            comp = f"more accurate than no-change ({ptxt})"
         elif float(p) < 0.05:
-            comp = f"less accurate than no-change (DM p = {float(p):.2g}{rtxt})"
+            comp = f"less accurate than no-change ({ptxt})"
         else:
-            comp = f"no better than no-change (DM p = {float(p):.2f}{rtxt})"
+            comp = f"no better than no-change ({ptxt})"
+    elif _finite(dm):
+        comp = f"too few independent periods to compare with no-change{rtxt}"
     elif start == 0:
         comp = "the forward is the no-change forecast at this horizon"
     else:

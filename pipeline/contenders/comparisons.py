@@ -7,7 +7,7 @@ lags, ``h`` the cell's overlap:
     Diebold and Mariano (1995) on ``d = e_a^2 - e_b^2``. ``statistic`` is the Harvey, Leybourne
     and Newbold (1997) form (the HAC t times ``sqrt((n + 1 - 2h + h(h-1)/n) / n)``, as
     ``audit_summary.dm_stat``); negative: A had the smaller loss. ``p_value`` (two-sided) is the
-    overlap-aware fixed-b p-value of the unscaled HAC t (:mod:`pipeline.contenders.fixed_b`); the
+    overlap-aware fixed-b p-value of the unscaled HAC t (:mod:`pipeline.audit.fixed_b`); the
     HLN factor and fixed-b correct the same overstatement, so they are not compounded.
     ``p_value_plain`` (beyond the view) is the HLN statistic's Student-t(n-1) p-value.
 ``clark_west``
@@ -37,9 +37,9 @@ import numpy as np
 from scipy import stats
 
 from pipeline.audit import MIN_OBS, TIE
+from pipeline.audit.fixed_b import pvalue_one_sided, pvalue_two_sided
 from pipeline.audit.hac import bartlett_long_run, hac_mean, hln_factor
 from pipeline.contenders.cells import Cell
-from pipeline.contenders.fixed_b import pvalue_one_sided, pvalue_two_sided
 from pipeline.dates import as_days
 
 __all__ = ["TEST_COLUMNS", "TEST_EXTRA_COLUMNS", "cell_tests", "clark_west", "diebold_mariano_hln",

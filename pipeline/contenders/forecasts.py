@@ -32,8 +32,10 @@ import re
 import numpy as np
 import pandas as pd
 
-from pipeline.dates import BusinessCalendar, add_months, as_days
+from pipeline.compounding import from_continuous
+from pipeline.dates import BusinessCalendar, add_months, as_days, maturity_dates, year_fraction
 from pipeline.realize import realize
+from pipeline.tenors import Tenor
 
 __all__ = [
     "BUILTIN",
@@ -42,6 +44,7 @@ __all__ = [
     "attach_outcomes",
     "builtin_contenders",
     "is_user_name",
+    "model_expected_forecasts",
     "realize_forecasts",
     "trailing_premium",
 ]
@@ -231,3 +234,60 @@ def _realised_rows(fw: pd.DataFrame, done: pd.DataFrame) -> np.ndarray:
     key = ["curve", "as_of", "start_months", "tenor_months"]
     m = fw[key + ["_row"]].merge(done[key].assign(_hit=True), on=key, how="inner")
     return m["_row"].to_numpy()
+
+
+def model_expected_forecasts(keys: pd.DataFrame, risk_neutral: pd.DataFrame, *, compounding: str, day_count: str,
+                             calendar: BusinessCalendar) -> pd.DataFrame:
+    """The ``model_expected`` forecasts of one curve's forward cells: the model's risk-neutral forward.
+
+    ``keys`` has ``curve, as_of, start_months, tenor_months`` (the cells to forecast: S, M in
+    months); ``risk_neutral`` the model's daily real-time ``curve, as_of, maturity_months,
+    risk_neutral_yield`` (continuous decimals a year at exact n/12-year times on the curve's day
+    count; rows of the ``model_term_premium`` view with ``fit = 'realtime'``). Prices of risk set
+    to zero, the model's yield of maturity n is the average expected short rate to n (plus a
+    convexity term), so the continuous forward from S to S+M months,
+    ``(rn(S+M) (S+M) - rn(S) S) / M`` (``rn(0) = 0``), is the model's expected M-month rate S months
+    ahead. It is converted to the curve's ``compounding`` over ``tau = year_fraction(start_date,
+    end_date, day_count)`` of the forward's own dates (``maturity_dates`` of S and S+M months on
+    ``calendar``), as the forwards are. A key is left out when its as-of day has no model row or
+    S+M exceeds the model's longest maturity. Returns :data:`FORECAST_COLUMNS`, vectorised (a loop
+    over the distinct month offsets only).
+    """
+    _require(keys, ("curve", "as_of", "start_months", "tenor_months"), "keys")
+    _require(risk_neutral, ("as_of", "maturity_months", "risk_neutral_yield"), "risk_neutral")
+    empty = pd.DataFrame({c: [] for c in FORECAST_COLUMNS})
+    if keys.empty or risk_neutral.empty:
+        return empty
+    r_days = as_days(risk_neutral["as_of"].to_numpy())
+    days = np.unique(r_days)
+    mat = risk_neutral["maturity_months"].to_numpy(dtype=np.int64)
+    top = int(mat.max())
+    rn = np.full((days.size, top + 1), np.nan)
+    rn[:, 0] = 0.0  # rn(0) * 0 = 0: a forward starting today is the model's spot yield
+    rn[np.searchsorted(days, r_days), mat] = risk_neutral["risk_neutral_yield"].to_numpy(dtype=float)
+    as_of = as_days(keys["as_of"].to_numpy())
+    s = keys["start_months"].to_numpy(dtype=np.int64)
+    m = keys["tenor_months"].to_numpy(dtype=np.int64)
+    row = np.clip(np.searchsorted(days, as_of), 0, days.size - 1)
+    ok = (days[row] == as_of) & (s >= 0) & (m > 0) & (s + m <= top)
+    row, s, m, as_of = row[ok], s[ok], m[ok], as_of[ok]
+    with np.errstate(invalid="ignore"):
+        f_cc = (rn[row, s + m] * (s + m) - rn[row, s] * s) / m
+    tau = np.empty(row.size)
+    for a, b in np.unique(np.stack([s, s + m], axis=1), axis=0):  # one pass per distinct (S, S+M)
+        sel = (s == a) & (s + m == b)
+        d0 = maturity_dates(as_of[sel], Tenor(int(a), "M"), calendar)
+        d1 = maturity_dates(as_of[sel], Tenor(int(b), "M"), calendar)
+        tau[sel] = year_fraction(d0, d1, day_count)
+    rate = from_continuous(f_cc, compounding, tau)
+    keep = np.isfinite(rate)
+    src = keys.iloc[np.flatnonzero(ok)[keep]]
+    out = pd.DataFrame({
+        "curve": src["curve"].to_numpy(),
+        "contender": np.full(int(keep.sum()), "model_expected", dtype=object),
+        "as_of": as_of[keep],
+        "start_months": s[keep],
+        "tenor_months": m[keep],
+        "forecast_rate": rate[keep],
+    })
+    return out.sort_values(["curve", "as_of", "start_months", "tenor_months"], kind="stable", ignore_index=True)

@@ -6,7 +6,7 @@ Per contender, on the cell's common sample (:mod:`pipeline.contenders.cells`): `
 ``audit_summary``), ``rmse_bp``, ``mae_bp``, ``rmse_ratio`` (RMSE over that of ``no_change`` on the
 same days; NaN without it) and ``indicative`` (``n_effective < 10``). Beyond the view:
 ``h``, ``lags`` and ``hac_p_value``, the two-sided p-value of ``hac_t`` from the overlap-aware
-fixed-b null (:mod:`pipeline.contenders.fixed_b`). The HAC figures need ``n >= 8``, ``h < n`` and
+fixed-b null (:mod:`pipeline.audit.fixed_b`). The HAC figures need ``n >= 8``, ``h < n`` and
 errors that vary (NaN otherwise), as in the audit.
 """
 
@@ -14,14 +14,13 @@ from __future__ import annotations
 
 import numpy as np
 
-from pipeline.audit import MIN_OBS, TIE
+from pipeline.audit import INDICATIVE_BELOW, MIN_OBS, TIE
+from pipeline.audit.fixed_b import pvalue_two_sided
 from pipeline.audit.hac import hac_mean
 from pipeline.contenders.cells import Cell
-from pipeline.contenders.fixed_b import pvalue_two_sided
 
-__all__ = ["INDICATIVE_BELOW", "SCORE_COLUMNS", "SCORE_EXTRA_COLUMNS", "cell_scores"]
+__all__ = ["SCORE_COLUMNS", "SCORE_EXTRA_COLUMNS", "cell_scores"]
 
-INDICATIVE_BELOW = 10.0  # non-overlapping periods: fewer, and every figure of the cell is indicative only
 SCORE_COLUMNS = ("curve", "contender", "start_months", "tenor_months", "n", "n_effective", "mean_error_bp",
                  "hac_t", "rmse_bp", "mae_bp", "rmse_ratio", "indicative")
 SCORE_EXTRA_COLUMNS = ("h", "lags", "hac_p_value")

@@ -13,7 +13,7 @@ from collections.abc import Mapping, Sequence
 import numpy as np
 import pandas as pd
 
-from pipeline.contenders.scores import INDICATIVE_BELOW
+from pipeline.audit import INDICATIVE_BELOW
 
 __all__ = ["VERDICT_COLUMNS", "cell_verdict", "contender_label", "verdicts"]
 

@@ -26,10 +26,12 @@ from pipeline.tenors import parse_tenor
 
 __all__ = [
     "Chart",
+    "contender_rmse_chart",
     "error_chart",
     "findings_chart",
     "forwards_chart",
     "history_chart",
+    "model_premium_chart",
     "premium_chart",
     "rmse_chart",
 ]
@@ -418,4 +420,72 @@ def premium_chart(curve: CurveReport, prefix: str) -> Chart | None:
     caption = (f"Each point is the mean of forward minus realised rate over the {curve.premium_window_days} "
                f"observation days ending at that date; {_thinned_note(period)}. A band clear of zero marks a "
                "premium distinguishable from no premium at 5 %.")
+    return Chart(svg, title, caption)
+
+
+def model_premium_chart(curve: CurveReport, prefix: str) -> Chart | None:
+    """The model's real-time term premium (bp) at the maturities held in ``curve.model_premium``, at
+    month ends, over time: the ex-ante premium beside the ex-post record of :func:`premium_chart`."""
+    m = curve.model_premium
+    if m is None or m.empty:
+        return None
+    as_of = _days(m["as_of"])
+    first, last = as_of.min(), as_of.max()
+    title = f"{curve.name}: model term premium (real-time estimate, month ends)"
+    with chart_style():
+        fig = new_figure(WIDTH, 2.8)
+        ax = fig.subplots()
+        ax.axhline(0.0, color=MUTED, linewidth=0.7)
+        for k, n in enumerate(sorted(m["maturity_months"].unique())):
+            part = m[m["maturity_months"] == n]
+            ax.plot(_days(part["as_of"]), part["term_premium"].to_numpy(dtype=float) * 1e4,
+                    color=TENOR_COLOURS[k % len(TENOR_COLOURS)], linewidth=1.0, label=f"{months_label(n)} yield")
+        ax.set_ylabel("Term premium (bp)")
+        ax.set_xlabel("Month end")
+        _date_axis(ax, first, last)
+        ax.legend(loc="upper left", bbox_to_anchor=(1.0, 1.0))
+        fig.suptitle(title, x=0.01, ha="left", color=INK)
+        svg = figure_svg(fig, prefix, title)
+    caption = ("The model's yield minus its risk-neutral yield (continuous, bp), each month end estimated with "
+               "data up to that month end only. It is a model's split of the yield, not an observed quantity; "
+               "the ex-post premium above is what the forwards actually missed by.")
+    return Chart(svg, title, caption)
+
+
+def contender_rmse_chart(curve: CurveReport, prefix: str) -> Chart | None:
+    """RMSE (bp) of every contender by forward start, one panel per tenor, on each cell's common sample."""
+    s = curve.contender_scores
+    if s is None or s.empty:
+        return None
+    s = s[s["start_months"] > 0]
+    if s.empty:
+        return None
+    tenors = sorted(s["tenor_months"].unique())
+    starts = sorted(s["start_months"].unique())
+    names = list(dict.fromkeys(s["contender"]))
+    pos = {st: i for i, st in enumerate(starts)}
+    markers = ("o", "s", "^", "D", "v", "P", "X")
+    title = f"{curve.name}: RMSE of each contender by horizon"
+    with chart_style():
+        fig = new_figure(WIDTH, 3.0)
+        axes = np.atleast_1d(fig.subplots(1, len(tenors), sharey=True))
+        for i, (ax, t) in enumerate(zip(axes, tenors, strict=True)):
+            for k, name in enumerate(names):
+                part = s[(s["tenor_months"] == t) & (s["contender"] == name)].sort_values("start_months")
+                if part.empty:
+                    continue
+                ax.plot([pos[v] for v in part["start_months"]], part["rmse_bp"].to_numpy(dtype=float),
+                        marker=markers[k % len(markers)], markersize=3.2, linewidth=1.0,
+                        color=TENOR_COLOURS[k % len(TENOR_COLOURS)], label=name)
+            ax.set_xticks(range(len(starts)), [months_label(v) for v in starts], fontsize=7)
+            ax.set_title(f"{months_label(t)} tenor", fontsize=8.5)
+            ax.set_xlabel("Forward start")
+            if i == 0:
+                ax.set_ylabel("RMSE (bp)")
+        handles, labels = axes[0].get_legend_handles_labels()
+        axes[-1].legend(handles, labels, loc="upper left", bbox_to_anchor=(1.0, 1.0))
+        fig.suptitle(title, x=0.01, ha="left", color=INK)
+        svg = figure_svg(fig, prefix, title)
+    caption = ("Lower is better. Each cell's contenders are scored on the as-of days all of them have an "
+               "outcome, so the points of one horizon compare like with like.")
     return Chart(svg, title, caption)

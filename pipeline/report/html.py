@@ -32,7 +32,7 @@ from pipeline.report.style import STYLESHEET
 
 __all__ = ["CHECK_ORDER", "SECTIONS", "input_fingerprint", "render_report"]
 
-#: (anchor, heading) of the seven sections, in order
+#: (anchor, heading) of the eight sections, in order
 SECTIONS = (
     ("scope", "Scope and provenance"),
     ("quality", "Data quality"),
@@ -40,6 +40,7 @@ SECTIONS = (
     ("forwards", "Forwards against what happened"),
     ("errors", "Forecast error by horizon"),
     ("premium", "Term premium over time"),
+    ("contenders", "Forecast contenders"),
     ("cautions", "Cautions"),
 )
 CHECK_ORDER = ("unparseable", "out_of_range", "duplicate", "missing_day", "missing_tenor", "stale_curve",
@@ -422,15 +423,19 @@ def _errors_body(c: CurveReport, i: int) -> str:
         out.append('<p class="more">Forwards starting now (0M) are the spot rate itself; their error is zero by '
                    "construction, so they are left out of the table and the charts.</p>")
         s = s[s["start_months"] > 0]
-    head = ["Start", "Tenor", _nh("n"), _nh("Mean error (bp)"), _nh("HAC 95 % interval (bp)"), _nh("Lags"),
-            _nh("RMSE fwd (bp)"), _nh("RMSE no-change (bp)"), _nh("RMSE ratio"), _nh("DM p"), _nh("MZ slope"),
+    head = ["Start", "Tenor", _nh("n"), _nh("Independent periods"), _nh("Mean error (bp)"),
+            _nh("HAC 95 % interval (bp)"), _nh("Lags"), _nh("Bias p (fixed-b)"), _nh("RMSE fwd (bp)"),
+            _nh("RMSE no-change (bp)"), _nh("RMSE ratio"), _nh("DM p"), _nh("DM p (fixed-b)"), _nh("MZ slope"),
             _nh("MZ p"), _nh("FB slope"), _nh("Hit rate")]
     body = []
     for _, r in s.iterrows():
+        flag = r.get("indicative")
+        indep = fmt_num(r.get("n_effective"), 1) + (" *" if not is_missing(flag) and bool(flag) else "")
         cells = [months_label(r["start_months"]), months_label(r["tenor_months"]), _n(fmt_count(r["n"])),
-                 _n(fmt_bp(r["mean_error_bp"], signed=True)), _n(_interval(r)),
-                 _n(fmt_count(r.get("lags"))), _n(fmt_bp(r["rmse_bp"])), _n(fmt_bp(r["rw_rmse_bp"])),
-                 _n(fmt_num(r["rmse_ratio"], 2)), _n(fmt_pvalue(r["dm_pvalue"])), _n(fmt_num(r["mz_beta"], 2)),
+                 _n(indep), _n(fmt_bp(r["mean_error_bp"], signed=True)), _n(_interval(r)),
+                 _n(fmt_count(r.get("lags"))), _n(fmt_pvalue(r.get("hac_pvalue"))), _n(fmt_bp(r["rmse_bp"])),
+                 _n(fmt_bp(r["rw_rmse_bp"])), _n(fmt_num(r["rmse_ratio"], 2)), _n(fmt_pvalue(r["dm_pvalue"])),
+                 _n(fmt_pvalue(r.get("dm_pvalue_fixed_b"))), _n(fmt_num(r["mz_beta"], 2)),
                  _n(fmt_pvalue(r["mz_pvalue"])), _n(fmt_num(r["fb_beta"], 2)),
                  _n(fmt_pct(r["hit_rate"], 0) if not is_missing(r["hit_rate"]) else MISSING)]
         verdict = r.get("verdict")
@@ -444,12 +449,17 @@ def _errors_body(c: CurveReport, i: int) -> str:
                + "".join(h.html("th") if isinstance(h, _Cell) else f"<th>{esc(h)}</th>" for h in head)
                + "</tr></thead><tbody>" + "".join(body) + "</tbody></table></div>")
     out.append('<p class="more">Mean error: forward minus realised rate. HAC: Newey-West (Bartlett) with the '
-               "lags shown (the overlap of consecutive forecasts). RMSE ratio: forward over no-change; below 1 "
+               "lags shown (the overlap of consecutive forecasts); the interval is the plain normal one. "
+               "Independent periods: outcomes over the overlap, the number of forecasts that share no future; "
+               "* marks fewer than 10, where every figure of the row is indicative only. Bias p (fixed-b): "
+               "p-value of the mean error's HAC t under the fixed-b null for overlapping forecasts (the plain "
+               "normal reading over-rejects at heavy overlap). RMSE ratio: forward over no-change; below 1 "
                "the forwards forecast better. DM p: Diebold-Mariano test (Harvey-Leybourne-Newbold form) of "
-               "equal squared error against no-change. MZ: Mincer-Zarnowitz regression of realised on forward "
+               "equal squared error against no-change; DM p (fixed-b): the same statistic under the fixed-b "
+               "null. MZ: Mincer-Zarnowitz regression of realised on forward "
                "(p: joint test of intercept 0 and slope 1). FB slope: Fama-Bliss slope of the realised change on "
                "the forward-spot spread. Hit rate: share of predicted moves whose direction came true. "
-               "Significance at 5 %.</p>")
+               "Significance at 5 %, judged by the fixed-b p-values.</p>")
     regimes = c.summary[(c.summary["regime"] != "all") & (c.summary["start_months"] > 0)] \
         if "regime" in c.summary else pd.DataFrame()
     if len(regimes):
@@ -480,6 +490,61 @@ def _premium_body(c: CurveReport, i: int) -> str:
               _n(f"{fmt_bp(r['lower_bp'], signed=True)} to {fmt_bp(r['upper_bp'], signed=True)}")]
              for r in _rows(latest)),
             caption="The latest trailing-window premium of each horizon."))
+    chart = charts.model_premium_chart(c, f"m{i}")
+    if chart is not None:
+        out.append("<h4>The model term premium</h4>")
+        out.append(_figure(chart, f"fig-model-premium-{i}", ""))
+    return "".join(out)
+
+
+def _contenders_body(c: CurveReport, i: int) -> str:
+    s, mcs = c.contender_scores, c.confidence_set
+    if s is None or s.empty:
+        return _empty("No comparison stored yet (run 'afterward compare').")
+    out = []
+    if c.compared:
+        at, lo, hi = c.compared
+        lo_text = "the start" if is_missing(lo) else fmt_date(lo)
+        hi_text = "the end" if is_missing(hi) else fmt_date(hi)
+        span = "the whole record" if is_missing(lo) and is_missing(hi) else f"as-of dates {lo_text} to {hi_text}"
+        out.append(_note(f"As computed by 'afterward compare' on {fmt_timestamp(at)} over {span}."))
+    out.append(_figure(charts.contender_rmse_chart(c, f"c{i}"), f"fig-contenders-{i}", "No horizon beyond 0M."))
+    names = list(dict.fromkeys(s["contender"]))
+    cells = s[s["start_months"] > 0][["start_months", "tenor_months"]].drop_duplicates()
+    p = {} if mcs is None or mcs.empty else {
+        (int(r["start_months"]), int(r["tenor_months"]), r["contender"]): (r["mcs_p_value"], bool(r["included"]))
+        for _, r in mcs.iterrows()}
+    sc = {(int(r["start_months"]), int(r["tenor_months"]), r["contender"]): r for _, r in s.iterrows()}
+
+    def cell(key: tuple) -> _Cell:
+        if key not in p:
+            return _n(MISSING)
+        pv, inc = p[key]
+        mark = "in" if inc else "out"
+        return _Cell(f"{fmt_pvalue(pv)} ({mark})", numeric=True, cls="" if inc else "muted")
+
+    rows = []
+    for _, r in cells.iterrows():
+        a, b = int(r["start_months"]), int(r["tenor_months"])
+        first = sc.get((a, b, names[0]))
+        n_eff = next((x["n_effective"] for k, x in sc.items() if k[:2] == (a, b)), None)
+        rows.append([months_label(a), months_label(b),
+                     _n(fmt_count(first["n"]) if first is not None else MISSING),
+                     _n(fmt_num(n_eff, 1) + (" *" if n_eff is not None and n_eff < 10 else "")
+                        if n_eff is not None else MISSING),
+                     *[cell((a, b, name)) for name in names]])
+    out.append(_table(["Start", "Tenor", _nh("n"), _nh("Independent periods"), *[_nh(nm) for nm in names]], rows,
+                      caption="Model Confidence Set at 10 %: each contender's MCS p-value; 'in' = not beaten. "
+                              "* fewer than 10 non-overlapping periods: indicative only.", cls="results"))
+    v = c.contender_verdicts
+    if v is not None and len(v):
+        v = v[v["start_months"] > 0]
+        out.append('<ul class="verdicts">' + "".join(f"<li>{esc(x)}</li>" for x in v["verdict"]) + "</ul>")
+    out.append('<p class="more">Contenders: forward (the implied forward), no_change (the spot rate of the '
+               "tenor), premium_adjusted (the forward less the trailing premium known on the as-of date), "
+               "model_expected (the term-structure model's risk-neutral forward), forward@METHOD (a what-if "
+               "build) and any forecast file loaded by the team. Tests and p-values use a fixed-b null that "
+               "allows for overlapping forecasts; the pairwise tests are in the contender_tests view.</p>")
     return "".join(out)
 
 
@@ -510,7 +575,7 @@ CAUTIONS = (
 
 def _cautions() -> str:
     items = "".join(f"<li><strong>{esc(a)}</strong> {esc(b)}</li>" for a, b in CAUTIONS)
-    return _section(6, f'<ol class="cautions">{items}</ol>')
+    return _section(len(SECTIONS) - 1, f'<ol class="cautions">{items}</ol>')
 
 
 def _facts(data: ReportData) -> str:
@@ -534,6 +599,14 @@ def _span(curves: Sequence[CurveReport]) -> tuple[object, object]:
     return (min(firsts) if firsts else None, max(lasts) if lasts else None)
 
 
+def _known_at_banner(data: ReportData) -> str:
+    if data.as_known_at is None:
+        return ""
+    return (f'<p class="known-at" role="note"><strong>Data as known at {esc(fmt_timestamp(data.as_known_at))} UTC.'
+            "</strong> This report was recomputed from the archive as it stood then (quote versions, findings and "
+            "acceptances of that time; later loads and restatements left out). It is not the current record.</p>")
+
+
 def render_report(data: ReportData) -> str:
     """The whole report as one self-contained HTML document (UTF-8 text).
 
@@ -547,7 +620,7 @@ def render_report(data: ReportData) -> str:
     body = [
         '<header class="masthead"><p class="kicker">Model validation evidence \u00b7 implied forwards against '
         "realised rates</p>"
-        f"<h1>{esc(data.title)}</h1><p class=\"lede\">{esc(lede)}</p>{_facts(data)}"
+        f"<h1>{esc(data.title)}</h1><p class=\"lede\">{esc(lede)}</p>{_known_at_banner(data)}{_facts(data)}"
         f'<nav class="contents"><p>Contents</p><ol>{toc}</ol></nav></header>',
         _scope(data),
         _quality(data, first, last),
@@ -561,6 +634,8 @@ def render_report(data: ReportData) -> str:
                    "and whether they beat the no-change forecast.", _errors_body),
         _per_curve(data.curves, 5, "The ex-post term premium: the average amount by which the forwards "
                    "exceeded the rates that followed, over a trailing window of observation days.", _premium_body),
+        _per_curve(data.curves, 6, "The forwards scored against every other forecast on the same days: which are "
+                   "not beaten, at each horizon, and how much independent evidence there is.", _contenders_body),
         _cautions(),
         f"<footer>afterward {esc(data.program_version)} \u00b7 schema {esc(data.schema_version)} \u00b7 generated "
         f"{esc(fmt_timestamp(data.generated_at))}. This file is self-contained: it loads nothing from "

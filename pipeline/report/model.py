@@ -36,6 +36,11 @@ class CurveReport:
     ``first_day`` / ``last_day``: the observed as-of range shown; ``days_observed`` its day count.
     ``pending``: forwards whose target date has not been observed yet.
     ``notes``: plain sentences shown at the top of the curve's audit part (e.g. a stale audit).
+    ``contender_scores``, ``confidence_set``, ``contender_verdicts``: the stored contender comparison
+    (``contender_score`` rows, ``confidence_set`` rows, ``start_months, tenor_months, verdict``);
+    ``compared``: (computed_at, first_as_of, last_as_of) of that comparison, or None.
+    ``model_premium``: ``as_of, maturity_months, term_premium`` (decimal), the model's real-time term
+    premium at month ends.
     """
 
     name: str
@@ -56,6 +61,11 @@ class CurveReport:
     days_observed: int = 0
     pending: int = 0
     notes: tuple[str, ...] = ()
+    contender_scores: pd.DataFrame = field(default_factory=_empty)
+    confidence_set: pd.DataFrame = field(default_factory=_empty)
+    contender_verdicts: pd.DataFrame = field(default_factory=_empty)
+    compared: tuple | None = None
+    model_premium: pd.DataFrame = field(default_factory=_empty)
 
 
 @dataclass(frozen=True)
@@ -68,6 +78,7 @@ class ReportData:
     ``findings``: the ``findings`` view's rows in scope; ``held``: open, unaccepted ``reject``
     findings (days kept out of the build); ``rejected_rows``: ``load_id, file_name, line, raw, reason``.
     ``window``: the ``(from, to)`` ISO dates asked for, ``None`` for open ends.
+    ``as_known_at``: for a report of the archive as it stood at a past time (naive UTC), that time.
     """
 
     generated_at: datetime
@@ -77,6 +88,7 @@ class ReportData:
     store_path: str = ""
     config_path: str = ""
     window: tuple[str | None, str | None] = (None, None)
+    as_known_at: datetime | None = None
     loads: pd.DataFrame = field(default_factory=_empty)
     builds: pd.DataFrame = field(default_factory=_empty)
     findings: pd.DataFrame = field(default_factory=_empty)

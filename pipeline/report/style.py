@@ -67,6 +67,9 @@ tr.has-verdict td { border-bottom: 0; padding-bottom: 1px; }
 tr.verdict td { padding-top: 0; color: var(--muted); font-size: 12.5px; font-style: italic; }
 tr.verdict td::before { content: "\\2192\\00a0"; font-style: normal; color: var(--accent); }
 .more { color: var(--muted); font-size: 12.5px; }
+td.muted { color: var(--muted); }
+.known-at { margin: 12px 0; padding: 12px 14px; border: 3px solid #b8520a; background: #fff4e5; font-size: 15px; }
+ul.verdicts { margin: 8px 0; padding-left: 20px; font-size: 13.5px; }
 .mono, code { font-family: var(--mono); font-size: 12px; word-break: break-all; }
 .sev { display: inline-block; padding: 0 6px; border-radius: 2px; font-size: 11.5px; font-weight: 650;
        border: 1px solid currentColor; }

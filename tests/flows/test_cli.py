@@ -208,13 +208,17 @@ def _all_commands() -> list[str]:
     from flows.cli import app
 
     names = [c.name or c.callback.__name__ for c in app.registered_commands]
+    # a group's own help, then each of its commands ("forecasts", "forecasts load", ...)
+    for group in app.registered_groups:
+        names.append(group.name)
+        names += [f"{group.name} {c.name or c.callback.__name__}" for c in group.typer_instance.registered_commands]
     return CONTRACT_COMMANDS + sorted(set(names) - set(CONTRACT_COMMANDS))
 
 
 def test_help_shows_what_a_user_types_not_python_types(tmp_path):
     seen = {}
     for command in ["", *_all_commands()]:
-        proc = run_cli(*([command] if command else []), "--help", cwd=tmp_path, env={"COLUMNS": "200"})
+        proc = run_cli(*command.split(), "--help", cwd=tmp_path, env={"COLUMNS": "200"})
         assert proc.returncode == 0, (command, proc.stderr)
         # typer's type markers: <bool>, <str>, <path>, <list[Path]>, <int>
         assert "<" not in proc.stdout, (command, [x for x in proc.stdout.splitlines() if "<" in x])
@@ -222,6 +226,7 @@ def test_help_shows_what_a_user_types_not_python_types(tmp_path):
     assert "Usage: afterward load [OPTIONS] FILE..." in seen["load"]
     assert "Usage: afterward init [OPTIONS] [DIR]" in seen["init"]
     assert "Usage: afterward sql [OPTIONS] QUERY" in seen["sql"]
+    assert "Usage: afterward forecasts load [OPTIONS] FILE..." in seen["forecasts load"]
     # a flag shows no value: "--full-sample-only" then straight to its help text
     flag = next(x for x in seen["model"].splitlines() if "--full-sample-only" in x)
     assert flag.split("--full-sample-only", 1)[1].split()[0] == "Only", flag
@@ -231,6 +236,8 @@ def test_help_shows_what_a_user_types_not_python_types(tmp_path):
                                      ("backfill", "--workers", "N"), ("status", "--config", "FILE"),
                                      ("model", "--curve", "CURVE"), ("model", "--factors", "K"),
                                      ("model", "--max-months", "N"), ("model", "--config", "FILE"),
+                                     ("forecasts load", "--name", "NAME"), ("forecasts load", "--units", "UNITS"),
+                                     ("forecasts load", "--curve", "CURVE"), ("forecasts list", "--format", "FORMAT"),
                                      ("", "--config", "FILE")]:
         # the options panel's row: "│ [*] --from  DATE  First as-of date ..."
         line = next(x for x in seen[command].splitlines() if x.strip("│ *").startswith(f"{option} "))

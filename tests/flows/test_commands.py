@@ -198,3 +198,23 @@ def test_demo_command_makes_the_store_and_the_report_it_prints(tmp_path):
     m = re.search(r"^realize: ([\d,]+) outcomes", proc.stdout, re.M)
     assert m and int(m.group(1).replace(",", "")) == outcomes > 0
     assert audit > 0 and len(curves) == 2
+    # the treasury desk's view: one forecast file, every row of it loaded as the contender desk_view
+    from pipeline.demo.desk_view import DESK_VIEW_FILE, DESK_VIEW_NAME
+
+    desk = target / DESK_VIEW_FILE
+    lines = desk.read_text(encoding="utf-8").splitlines()
+    con = duckdb.connect(str(store), read_only=True)
+    try:
+        assert con.execute("SELECT contender, status, rows_read, rows_rejected FROM forecast_loads").fetchall() == [
+            (DESK_VIEW_NAME, "loaded", len(lines) - 1, 0)]
+        assert con.execute("SELECT list(DISTINCT curve ORDER BY curve), count(*) FROM forecasts").fetchone() == (
+            curves, len(lines) - 1)
+        # compare ran with the desk view among the contenders, and the verdict printed is the stored one
+        names = {r[0] for r in con.execute("SELECT DISTINCT contender FROM contender_scores").fetchall()}
+        assert {"forward", "no_change", "premium_adjusted", DESK_VIEW_NAME} <= names
+        verdict = con.execute("SELECT verdict FROM contender_verdict WHERE curve = 'govt' AND start_months = 24 "
+                              "AND tenor_months = 12").fetchone()[0]
+    finally:
+        con.close()
+    assert f"compare: govt {verdict}" in proc.stdout
+    assert "the desk view" in verdict

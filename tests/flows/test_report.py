@@ -43,6 +43,7 @@ from flows.check_step import run_checks
 from flows.load_step import load_files
 from flows.realize_step import run_realize
 from flows.report_step import write_report
+from pipeline.audit.fixed_b import pvalue_two_sided
 from pipeline.config import load_config
 from pipeline.demo import demo_config_toml, generate_market, render_feed
 from pipeline.report import SECTIONS
@@ -142,16 +143,22 @@ def test_report_numbers_match_a_plain_recomputation(demo_store: Path, report: Pa
     with _store(demo_store) as con:
         errors = con.execute("SELECT error_bp, rw_error_bp FROM outcomes WHERE curve = ? AND start_months = ? AND "
                              "tenor_months = ?", [curve, s_m, t_m]).df()
-        se = con.execute("SELECT hac_se_bp FROM audit_result WHERE curve = ? AND start_months = ? AND "
-                         "tenor_months = ? AND regime = 'all'", [curve, s_m, t_m]).fetchone()[0]
+        se, lags, hac_t = con.execute("SELECT hac_se_bp, lags, hac_t FROM audit_result WHERE curve = ? AND "
+                                      "start_months = ? AND tenor_months = ? AND regime = 'all'",
+                                      [curve, s_m, t_m]).fetchone()
     # plain pandas over the outcomes view: n, mean error, RMSE of forward and of no-change
     mean = errors["error_bp"].mean()
-    assert cells[2] == f"{len(errors):,}"
-    assert cells[3] == f"{mean:+.1f}"
-    assert cells[6] == f"{np.sqrt((errors['error_bp'] ** 2).mean()):.1f}"
-    assert cells[7] == f"{np.sqrt((errors['rw_error_bp'] ** 2).mean()):.1f}"
+    n, h = len(errors), lags + 1
+    assert cells[2] == f"{n:,}"
+    assert cells[3] == f"{n / h:,.1f}" + (" *" if n / h < 10 else "")  # independent periods, n over the overlap
+    assert cells[4] == f"{mean:+.1f}"
+    assert cells[8] == f"{np.sqrt((errors['error_bp'] ** 2).mean()):.1f}"
+    assert cells[9] == f"{np.sqrt((errors['rw_error_bp'] ** 2).mean()):.1f}"
     # the HAC interval is mean +/- 1.96 standard errors, with the standard error the audit stored
-    assert cells[4] == f"{mean - 1.96 * se:+.1f} to {mean + 1.96 * se:+.1f}"
+    assert cells[5] == f"{mean - 1.96 * se:+.1f} to {mean + 1.96 * se:+.1f}"
+    # the bias p is the fixed-b p of the stored HAC t (pipeline.audit.fixed_b, its own tests hold it)
+    p = pvalue_two_sided(hac_t, n, h)
+    assert cells[7] == ("&lt; 0.001" if p < 0.001 else f"{p:.3f}")
 
 
 def test_cli_writes_the_report_beside_the_config(demo_store: Path) -> None:
@@ -180,7 +187,7 @@ def test_cli_report_for_one_curve_and_a_window(demo_store: Path, tmp_path: Path)
                             "WHERE curve = 'govt' AND superseded_at IS NULL AND as_of BETWEEN DATE '2001-01-01' "
                             "AND DATE '2002-12-31'").fetchone()
     cells = _results_row(text, "govt", "6M", "1Y")
-    assert cells[2] == f"{len(e):,}" and cells[3] == f"{e['error_bp'].mean():+.1f}"
+    assert cells[2] == f"{len(e):,}" and cells[4] == f"{e['error_bp'].mean():+.1f}"
     assert f"{days[0]:%Y-%m-%d} to {days[1]:%Y-%m-%d}" in text
     # provenance and rejected rows are those of the files the window rests on (the garbled line of
     # 2003-07 is outside it)

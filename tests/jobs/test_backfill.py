@@ -32,7 +32,7 @@ FWD_COLS = "curve, as_of, start_months, tenor_months, start_date, end_date, forw
 OUT_COLS = "curve, as_of, start_months, tenor_months, target_date, observed_on, forward_rate, realized_rate"
 AUDIT_COLS = ("curve, start_months, tenor_months, regime, n, first_as_of, last_as_of, mean_error_bp, rmse_bp, mae_bp, "
               "hac_t, rw_rmse_bp, rmse_ratio, dm_stat, dm_pvalue, mz_alpha, mz_beta, mz_pvalue, fb_beta, fb_beta_se, "
-              "fb_r2, hit_rate")
+              "fb_r2, hit_rate, n_effective, hac_pvalue, dm_pvalue_fixed_b, indicative")
 PREMIUM_COLS = "curve, as_of, start_months, tenor_months, window_days, premium_bp, lower_bp, upper_bp"
 FINDING_COLS = "curve, as_of, check_name, severity, tenor, detail"
 STATE_COLS = "curve, start_months, tenor_months, regime, n, lags, sums, band, lag_band"

@@ -25,8 +25,10 @@ import pytest
 from flows.audit_step import run_audit
 from flows.build_step import run_build
 from flows.check_step import run_checks
+from flows.compare_step import run_compare
 from flows.export_step import MARKER, export_views
 from flows.load_step import UserError, load_files
+from flows.model_step import run_model
 from flows.realize_step import run_realize
 from tests.conftest import run_cli
 from warehouse.connect import reader
@@ -48,6 +50,14 @@ CONTRACT_VIEWS: dict[str, str | None] = {
     "outcomes": "as_of",
     "audit_summary": None,
     "term_premium": "as_of",
+    "term_panel": "as_of",
+    "excess_returns": "as_of",
+    "eh_regressions": None,
+    "model_term_premium": "as_of",
+    "contender_outcomes": "as_of",
+    "contender_scores": None,
+    "contender_tests": None,
+    "confidence_set": None,
 }
 PARTITIONED = [v for v, d in CONTRACT_VIEWS.items() if d]
 READERS = ["pandas", "pyarrow", "polars", "duckdb"]
@@ -55,19 +65,22 @@ READERS = ["pandas", "pyarrow", "polars", "duckdb"]
 
 @pytest.fixture(scope="module")
 def store(demo_files, tmp_path_factory):  # noqa: ANN001, ANN201
-    """Two demo years through every step (no Prefect: export needs only the store). 2002-2003 hold the
-    end of the demo's inversion episode and its garbled line, so every contract view has rows."""
+    """Three demo years through every step (no Prefect: export needs only the store). 2002-2003 hold the
+    end of the demo's inversion episode and its garbled line; three years of month ends give the
+    expectations-hypothesis regressions rows: every contract view has rows."""
     from pipeline.config import load_config
     from pipeline.demo import demo_config_toml
 
     root = tmp_path_factory.mktemp("export")
     (root / "afterward.toml").write_text(demo_config_toml(), encoding="utf-8")
     cfg = load_config(root / "afterward.toml")
-    load_files(cfg, [p for p in demo_files.files if any(f"_{y}-" in p.name for y in (2002, 2003))])
+    load_files(cfg, [p for p in demo_files.files if any(f"_{y}-" in p.name for y in (2002, 2003, 2004))])
     run_checks(cfg)
     run_build(cfg)
     run_realize(cfg)
     run_audit(cfg)
+    run_model(cfg)
+    run_compare(cfg)
     return cfg
 
 

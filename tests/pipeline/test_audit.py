@@ -343,9 +343,11 @@ def test_summary_and_term_premium_recover_known_premium():
 
 # ---------------------------------------------------------------- verdict
 def _row(**over):
+    # h = 250: 4,800 outcomes hold 19.2 non-overlapping periods
     base = {"curve": "govt", "start_months": 24, "tenor_months": 12, "regime": "all", "n": 4800,
             "mean_error_bp": 85.0, "std_error_bp": 60.0, "hac_t": 3.1, "dm_stat": 0.9, "dm_pvalue": 0.31,
-            "rmse_ratio": 1.04}
+            "rmse_ratio": 1.04, "n_effective": 19.2, "hac_pvalue": 0.004, "dm_pvalue_fixed_b": 0.31,
+            "indicative": False}
     base.update(over)
     return pd.Series(base)
 
@@ -354,20 +356,47 @@ def _row(**over):
     ("over", "expected"),
     [
         ({}, "forwards over-predicted the realised 1Y rate 2Y ahead by 85.0 bp on average "
-             "(HAC t = 3.1, n = 4,800); no better than no-change (DM p = 0.31, RMSE ratio 1.04)"),
-        ({"mean_error_bp": -12.34, "hac_t": -0.8, "dm_stat": -3.0, "dm_pvalue": 0.004, "rmse_ratio": 0.9},
+             "(HAC t = 3.1, fixed-b p = 0.004, n = 4,800, about 19 independent periods); no better than "
+             "no-change (DM fixed-b p = 0.31, RMSE ratio 1.04)"),
+        ({"mean_error_bp": -12.34, "hac_t": -0.8, "hac_pvalue": 0.6, "dm_stat": -3.0, "dm_pvalue": 0.001,
+          "dm_pvalue_fixed_b": 0.004, "rmse_ratio": 0.9},
          "forwards under-predicted the realised 1Y rate 2Y ahead by 12.3 bp on average "
-         "(HAC t = -0.8, n = 4,800; not significant at 5 %); more accurate than no-change "
-         "(DM p = 0.004, RMSE ratio 0.90)"),
-        ({"dm_stat": 2.5, "dm_pvalue": 0.01, "regime": "inverted", "start_months": 3, "tenor_months": 3},
+         "(HAC t = -0.8, fixed-b p = 0.60, n = 4,800, about 19 independent periods; not significant at 5 %); "
+         "more accurate than no-change (DM fixed-b p = 0.004, RMSE ratio 0.90)"),
+        ({"dm_stat": 2.5, "dm_pvalue": 0.002, "dm_pvalue_fixed_b": 0.01, "regime": "inverted", "start_months": 3,
+          "tenor_months": 3},
          "inverted curves: forwards over-predicted the realised 3M rate 3M ahead by 85.0 bp on average "
-         "(HAC t = 3.1, n = 4,800); less accurate than no-change (DM p = 0.01, RMSE ratio 1.04)"),
-        ({"n": 5, "hac_t": np.nan, "dm_stat": np.nan, "dm_pvalue": np.nan},
+         "(HAC t = 3.1, fixed-b p = 0.004, n = 4,800, about 19 independent periods); less accurate than "
+         "no-change (DM fixed-b p = 0.01, RMSE ratio 1.04)"),
+        ({"n": 5, "n_effective": 5.0, "indicative": True, "hac_t": np.nan, "hac_pvalue": np.nan, "dm_stat": np.nan,
+          "dm_pvalue": np.nan, "dm_pvalue_fixed_b": np.nan},
          "forwards over-predicted the realised 1Y rate 2Y ahead by 85.0 bp on average "
-         "(n = 5, too few outcomes for a HAC test); too few outcomes to compare with no-change, "
-         "RMSE ratio 1.04"),
+         "(n = 5, no overlap, too few outcomes for a HAC test; indicative only); too few outcomes to compare "
+         "with no-change, RMSE ratio 1.04"),
+        # the normal reading would call both significant (|t| > 1.96, DM p < 0.05); the fixed-b one decides
+        ({"hac_t": 2.5, "hac_pvalue": 0.12, "dm_stat": 2.4, "dm_pvalue": 0.02, "dm_pvalue_fixed_b": 0.2},
+         "forwards over-predicted the realised 1Y rate 2Y ahead by 85.0 bp on average "
+         "(HAC t = 2.5, fixed-b p = 0.12, n = 4,800, about 19 independent periods; not significant at 5 %); "
+         "no better than no-change (DM fixed-b p = 0.20, RMSE ratio 1.04)"),
+        # the case of the issue: 1-year-ahead forwards on a 3-year store, h = 250
+        ({"n": 489, "n_effective": 1.956, "indicative": True, "mean_error_bp": 42.0, "hac_t": -5.9,
+          "hac_pvalue": 0.09, "dm_stat": -1.0, "dm_pvalue": 0.3, "dm_pvalue_fixed_b": 0.52},
+         "forwards over-predicted the realised 1Y rate 2Y ahead by 42.0 bp on average "
+         "(HAC t = -5.9, fixed-b p = 0.09, n = 489, about 2 independent periods; not significant at 5 %; "
+         "indicative only); no better than no-change (DM fixed-b p = 0.52, RMSE ratio 1.04)"),
+        ({"hac_pvalue": 3e-9, "dm_stat": -8.0, "dm_pvalue_fixed_b": 2e-7, "n_effective": 9.6, "indicative": True,
+          "n": 2400},
+         "forwards over-predicted the realised 1Y rate 2Y ahead by 85.0 bp on average "
+         "(HAC t = 3.1, fixed-b p < 0.001, n = 2,400, fewer than 10 independent periods; indicative only); "
+         "more accurate than no-change (DM fixed-b p < 0.001, RMSE ratio 1.04)"),
+        # overlap beyond the fixed-b table (h / n > 0.9): a HAC t, but no test
+        ({"n": 100, "n_effective": 100 / 95, "indicative": True, "hac_pvalue": np.nan, "dm_pvalue_fixed_b": np.nan},
+         "forwards over-predicted the realised 1Y rate 2Y ahead by 85.0 bp on average "
+         "(HAC t = 3.1, n = 100, about 1 independent period; too few independent periods for a test; "
+         "indicative only); too few independent periods to compare with no-change, RMSE ratio 1.04"),
     ],
-    ids=["over-no-better", "under-better", "inverted-worse", "too-few"],
+    ids=["over-no-better", "under-better", "inverted-worse", "too-few", "normal-says-yes-fixed-b-no",
+         "issue-case-indicative", "tiny-p", "beyond-table"],
 )
 def test_verdict_wording(over, expected):
     text = verdict(_row(**over))
@@ -435,11 +464,11 @@ def _grow(o: pd.DataFrame, first: int, steps: list[int], window: int | None = 25
 def _assert_row_equal(got: dict, ref: pd.Series) -> None:
     for c in SUMMARY_COLUMNS[4:]:
         a, b = got[c], ref[c]
-        if c in ("n", "lags", "first_as_of", "last_as_of"):
+        if c in ("n", "lags", "first_as_of", "last_as_of", "indicative"):
             assert a == b, c
-        elif c.endswith("pvalue") and np.isfinite(b) and b > 0:
+        elif "pvalue" in c and np.isfinite(b) and b > 0:
             assert np.log(a) == pytest.approx(np.log(b), rel=STATE_RTOL, abs=1e-12), c  # far-tail p-values
-        elif c.endswith("pvalue") and np.isfinite(b):
+        elif "pvalue" in c and np.isfinite(b):
             assert a < 1e-300, c  # underflowed to 0 on the reference side
         elif np.isfinite(b):
             assert a == pytest.approx(b, rel=STATE_RTOL, abs=1e-12), c

@@ -278,3 +278,37 @@ def test_scores_against_plain_formulas_and_indicative_flag():
     long = compare(builtin_contenders(outcomes_frame(3000, 20, seed=15), window=100, min_history=60),
                    confidence_set=False)
     assert not long.scores["indicative"].any() and "indicative" not in long.verdicts["verdict"].iloc[0]
+
+
+def test_model_expected_is_the_risk_neutral_forward_in_the_curves_compounding() -> None:
+    """The model's expected M-month rate S months ahead: the continuous forward of its risk-neutral yields,
+    (rn(S+M)(S+M) - rn(S) S) / M (ACM 2013, tests/REFERENCES.md #24: risk-neutral yields price with zero
+    prices of risk), then the equivalent simple ACT/360 rate over the forward's own dates, by QuantLib's
+    ``InterestRate.equivalentRate`` (an outside reference for the conversion)."""
+    import QuantLib as ql
+
+    from pipeline.contenders import model_expected_forecasts
+    from pipeline.dates import maturity_dates, year_fraction
+    from pipeline.tenors import Tenor
+
+    days = CAL.business_days("2021-01-04", "2021-03-31")[:20]
+    mats = np.arange(1, 61)
+    rn_curve = 0.01 + 0.0004 * mats  # an upward-sloping risk-neutral curve, continuous, per year
+    rn = pd.DataFrame({"as_of": np.repeat(days, mats.size), "maturity_months": np.tile(mats, days.size),
+                       "risk_neutral_yield": np.tile(rn_curve, days.size)})
+    keys = pd.DataFrame([(d, s, m) for d in days for s, m in ((0, 3), (12, 12), (24, 36), (48, 24))],
+                        columns=["as_of", "start_months", "tenor_months"]).assign(curve="mm")
+    got = model_expected_forecasts(keys, rn, compounding="simple", day_count="ACT/360", calendar=CAL)
+    # (48, 24): 72 months is beyond the model's 60: left out, never extrapolated
+    assert set(zip(got["start_months"], got["tenor_months"], strict=True)) == {(0, 3), (12, 12), (24, 36)}
+    assert len(got) == 3 * days.size and set(got["contender"]) == {"model_expected"}
+    for _, r in got.iterrows():
+        s, m = int(r["start_months"]), int(r["tenor_months"])
+        rn_s = rn_curve[s - 1] if s else 0.0
+        f_cc = (rn_curve[s + m - 1] * (s + m) - rn_s * s) / m
+        d0 = maturity_dates(np.datetime64(r["as_of"], "D"), Tenor(s, "M"), CAL)
+        d1 = maturity_dates(np.datetime64(r["as_of"], "D"), Tenor(s + m, "M"), CAL)
+        tau = float(year_fraction(d0, d1, "ACT/360"))
+        want = ql.InterestRate(f_cc, ql.Actual360(), ql.Continuous, ql.NoFrequency).equivalentRate(
+            ql.Simple, ql.NoFrequency, tau).rate()
+        assert r["forecast_rate"] == pytest.approx(want, abs=1e-15)

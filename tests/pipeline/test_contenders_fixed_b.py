@@ -1,4 +1,4 @@
-"""The overlap-aware fixed-b null distribution (pipeline.contenders.fixed_b).
+"""The overlap-aware fixed-b null distribution (pipeline.audit.fixed_b).
 
 Sources: Kiefer & Vogelsang (2005) for the fixed-b idea (bandwidth a fixed share of the sample);
 the MA(h-1) equal-weight structure of overlapping h-step errors and the 2/3 Bartlett bias are the
@@ -13,7 +13,7 @@ import pytest
 import statsmodels.api as sm
 from scipy import stats
 
-from pipeline.contenders import fixed_b as fb
+from pipeline.audit import fixed_b as fb
 
 
 def test_row_wise_t_equals_statsmodels_hac():

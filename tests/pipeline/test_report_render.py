@@ -8,6 +8,7 @@ from __future__ import annotations
 
 import base64
 import hashlib
+import html
 import io
 import re
 import xml.etree.ElementTree as ET
@@ -357,3 +358,37 @@ def test_long_history_is_thinned_to_weeks() -> None:
     sizes = {Image.open(io.BytesIO(base64.b64decode(re.sub(r"\s", "", b)))).size for b in pngs}
     weeks = pd.DatetimeIndex(days).to_period("W-SUN").nunique()
     assert (weeks, len(tenors)) in sizes
+
+
+def test_the_contenders_section_draws_the_comparison_and_the_model_premium() -> None:
+    """The comparison of the curve's own outcomes (pipeline.contenders.compare, held to arch and
+    statsmodels in its own tests) drawn as the RMSE chart, the confidence-set table and the verdicts;
+    the model premium as its own chart beside the ex-post one."""
+    from dataclasses import replace
+
+    from pipeline.contenders import builtin_contenders, compare
+
+    base = _curve()
+    o = base.outcomes.assign(curve=base.name, observed_on=base.outcomes["target_date"])
+    rows = builtin_contenders(o, window=60, min_history=20)
+    result = compare(rows, reps=200)
+    months = pd.DataFrame({"as_of": np.repeat(pd.date_range("2031-01-31", periods=12, freq="ME"), 3),
+                           "maturity_months": np.tile([24, 60, 120], 12),
+                           "term_premium": np.tile([0.001, 0.004, 0.009], 12)})
+    c = replace(base, contender_scores=result.scores, confidence_set=result.confidence_set,
+                contender_verdicts=result.verdicts, compared=(pd.Timestamp("2031-07-01 06:00"), None, None),
+                model_premium=months)
+    page = render_report(_data((c,)))
+    parsed = _parse(page)
+    assert parsed.errors == [] and parsed.stack == []
+    assert "fig-model-premium-0" in parsed.figures and "fig-contenders-0" in parsed.figures
+    section = page[page.index('<section id="contenders">'):page.index('<section id="cautions">')]
+    assert "over the whole record" in section
+    for name in result.scores["contender"].unique():
+        assert f">{name}<" in section
+    for v in result.verdicts.loc[result.verdicts["start_months"] > 0, "verdict"]:
+        assert html.escape(v, quote=False) in section
+    # a cell with fewer than 10 non-overlapping periods carries the indicative mark
+    assert result.scores["indicative"].any() and " *" in section
+    empty = render_report(_data((_curve(),)))
+    assert "No comparison stored yet" in empty
