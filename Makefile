@@ -18,11 +18,11 @@ demo: $(VENV)/.installed
 
 test: $(VENV)/.installed
 	bash .ci/install-chromium.sh
-	$(PY) -m ruff check pipeline warehouse flows tests benchmarks
+	$(PY) -m ruff check afterward pipeline warehouse flows tests benchmarks
 	$(PY) -m pytest
 
 lint: $(VENV)/.installed
-	$(PY) -m ruff check pipeline warehouse flows tests benchmarks
+	$(PY) -m ruff check afterward pipeline warehouse flows tests benchmarks
 
 bench: $(VENV)/.installed
 	$(PY) benchmarks/run_all.py

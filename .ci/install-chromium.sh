@@ -1,8 +1,9 @@
 #!/usr/bin/env bash
-# Debian's Chromium for the report's browser test (tests/flows/test_report.py).
-# Idempotent: does nothing when /usr/bin/chromium is already installed. Quiet unless something fails.
+# Debian's Chromium for the report's browser test (tests/flows/test_report.py), and poppler-utils for
+# the print test's pdftotext. Idempotent: does nothing when both are already installed. Quiet unless
+# something fails.
 set -euo pipefail
-if [ -x /usr/bin/chromium ]; then
+if [ -x /usr/bin/chromium ] && [ -x /usr/bin/pdftotext ]; then
     exit 0
 fi
 run_as_root=()
@@ -12,8 +13,8 @@ fi
 export DEBIAN_FRONTEND=noninteractive
 log="$(mktemp)"
 trap 'rm -f "$log"' EXIT
-if ! { "${run_as_root[@]}" apt-get update -qq && "${run_as_root[@]}" apt-get install -y -qq chromium; } >"$log" 2>&1; then
+if ! { "${run_as_root[@]}" apt-get update -qq && "${run_as_root[@]}" apt-get install -y -qq chromium poppler-utils; } >"$log" 2>&1; then
     cat "$log" >&2
-    echo "install-chromium: could not install Debian's chromium package" >&2
+    echo "install-chromium: could not install Debian's chromium and poppler-utils packages" >&2
     exit 1
 fi

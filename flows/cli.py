@@ -111,6 +111,19 @@ ConfigOption = Annotated[str | None, typer.Option(
     help="Path to afterward.toml (else $AFTERWARD_CONFIG, else ./afterward.toml).")]
 
 ForceOption = Annotated[bool, typer.Option("--force", help="Overwrite an existing --out file.")]
+CurveOption = Annotated[str | None, typer.Option("--curve", metavar="CURVE", help="Only this curve.")]
+StartOption = Annotated[str | None, typer.Option("--start", metavar="TENOR",
+                                                 help="Only forecasts starting this far ahead (e.g. 1Y).")]
+TenorOption = Annotated[str | None, typer.Option("--tenor", metavar="TENOR",
+                                                 help="Only forecasts of this tenor (e.g. 3M).")]
+FromOption = Annotated[str | None, typer.Option("--from", metavar="DATE", help="First as-of date (YYYY-MM-DD).")]
+ToOption = Annotated[str | None, typer.Option("--to", metavar="DATE", help="Last as-of date (YYYY-MM-DD).")]
+TableFormatOption = Annotated[str, typer.Option("--format", metavar="FORMAT", help="table | csv | json")]
+
+
+def _table_format(fmt: str) -> None:
+    if fmt not in ("table", "csv", "json"):
+        raise _Exit(f"--format {fmt!r} is not allowed; allowed: table, csv, json", 2)
 
 
 @app.callback()
@@ -216,12 +229,11 @@ def forecasts_load(
 
 @forecasts_app.command("list")
 def forecasts_list(
-    fmt: Annotated[str, typer.Option("--format", metavar="FORMAT", help="table | csv | json")] = "table",
+    fmt: TableFormatOption = "table",
     config: ConfigOption = None,
 ) -> None:
     """What forecasts are loaded: per name and curve, files, current rows, first and last as-of, last load."""
-    if fmt not in ("table", "csv", "json"):
-        raise _Exit(f"--format {fmt!r} is not allowed; allowed: table, csv, json", 2)
+    _table_format(fmt)
     from flows.forecasts_step import list_forecasts
     from flows.output import write_result
 
@@ -234,45 +246,10 @@ def forecasts_list(
 
 # --- sql -----------------------------------------------------------------------------------------
 
-_ALLOWED_STATEMENTS = {"SELECT", "EXPLAIN"}
-
-
 def _guard_sql(query: str) -> None:
-    import re
+    from warehouse.query import refuse_writes
 
-    import duckdb
-
-    def kind_of(st) -> str:  # noqa: ANN001 - a duckdb Statement
-        kind = str(st.type).rsplit(".", 1)[-1]
-        if kind != "EXPLAIN":
-            return kind
-        # EXPLAIN ANALYZE runs the statement it explains: what follows EXPLAIN [ANALYZE] [(options)]
-        # is judged as a statement of its own
-        m = re.match(r"^\s*(?:(?:--[^\n]*(?:\n|$)|/\*.*?\*/)\s*)*EXPLAIN\b\s*(?:ANALY[SZ]E\b\s*)?(?:\([^()]*\)\s*)?",
-                     st.query, flags=re.IGNORECASE | re.DOTALL)
-        try:
-            inner = duckdb.extract_statements(st.query[m.end():]) if m else []
-        except duckdb.Error:
-            inner = []
-        if len(inner) != 1:
-            return "EXPLAIN of an unrecognised form"
-        inner_kind = str(inner[0].type).rsplit(".", 1)[-1]
-        return "EXPLAIN" if inner_kind == "SELECT" else f"EXPLAIN {inner_kind}"
-
-    try:
-        statements = duckdb.extract_statements(query)
-    except duckdb.Error as exc:
-        raise _Exit(f"SQL error: {str(exc).splitlines()[0]}", 2) from None
-    if not statements:
-        raise _Exit("no SQL statement given", 2)
-    for st in statements:  # a write anywhere in the text is named as such
-        kind = kind_of(st)
-        if kind not in _ALLOWED_STATEMENTS:
-            raise _Exit(f"refused: {kind} statements are not allowed; 'afterward sql' is read-only "
-                        "(queries only)", 2)
-    if len(statements) > 1:
-        # DuckDB's own splitter: a ';' inside a string literal or a comment does not count, a trailing one is fine
-        raise _Exit(f"one statement at a time: the query holds {len(statements)} statements", 2)
+    refuse_writes(query)  # shared with the notebook handle (afterward.open().sql)
 
 
 @app.command()
@@ -396,9 +373,9 @@ def _day(value: str | None, option: str) -> str | None:
 
 @app.command()
 def check(
-    curve: Annotated[str | None, typer.Option("--curve", metavar="CURVE", help="Only this curve.")] = None,
-    first: Annotated[str | None, typer.Option("--from", metavar="DATE", help="First as-of date (YYYY-MM-DD).")] = None,
-    last: Annotated[str | None, typer.Option("--to", metavar="DATE", help="Last as-of date (YYYY-MM-DD).")] = None,
+    curve: CurveOption = None,
+    first: FromOption = None,
+    last: ToOption = None,
     all_days: Annotated[bool, typer.Option("--all", help="Re-check every day, not only new ones.")] = False,
     accept: Annotated[tuple[str, str] | None, typer.Option("--accept", metavar="CURVE DAY",
                                                           help="Override a day's reject findings.")] = None,
@@ -435,9 +412,9 @@ def check(
 
 @app.command()
 def build(
-    curve: Annotated[str | None, typer.Option("--curve", metavar="CURVE", help="Only this curve.")] = None,
-    first: Annotated[str | None, typer.Option("--from", metavar="DATE", help="First as-of date (YYYY-MM-DD).")] = None,
-    last: Annotated[str | None, typer.Option("--to", metavar="DATE", help="Last as-of date (YYYY-MM-DD).")] = None,
+    curve: CurveOption = None,
+    first: FromOption = None,
+    last: ToOption = None,
     rebuild: Annotated[bool, typer.Option("--rebuild", help="Rebuild days already built.")] = False,
     method: Annotated[str | None, typer.Option("--method", metavar="METHOD", help="What-if interpolation method.")
                       ] = None,
@@ -516,20 +493,17 @@ def _in_grid(cfg, names: list[str], months: int | None, given: str | None, optio
 
 @app.command()
 def audit(
-    curve: Annotated[str | None, typer.Option("--curve", metavar="CURVE", help="Only this curve.")] = None,
-    start: Annotated[str | None, typer.Option("--start", metavar="TENOR",
-                                              help="Only forwards starting this far ahead (e.g. 1Y).")] = None,
-    tenor: Annotated[str | None, typer.Option("--tenor", metavar="TENOR",
-                                              help="Only forwards of this tenor (e.g. 3M).")] = None,
-    first: Annotated[str | None, typer.Option("--from", metavar="DATE", help="First as-of date (YYYY-MM-DD).")] = None,
-    last: Annotated[str | None, typer.Option("--to", metavar="DATE", help="Last as-of date (YYYY-MM-DD).")] = None,
-    fmt: Annotated[str, typer.Option("--format", metavar="FORMAT", help="table | csv | json")] = "table",
+    curve: CurveOption = None,
+    start: StartOption = None,
+    tenor: TenorOption = None,
+    first: FromOption = None,
+    last: ToOption = None,
+    fmt: TableFormatOption = "table",
     as_known_at: KnownAtOption = None,
     config: ConfigOption = None,
 ) -> None:
     """Forecast-error statistics by horizon, with a plain-language line for each."""
-    if fmt not in ("table", "csv", "json"):
-        raise _Exit(f"--format {fmt!r} is not allowed; allowed: table, csv, json", 2)
+    _table_format(fmt)
     s_months, t_months = _months_option(start, "--start"), _months_option(tenor, "--tenor")
     from flows.audit_step import run_audit
     from flows.output import print_audit
@@ -553,20 +527,17 @@ def audit(
 
 @app.command()
 def compare(
-    curve: Annotated[str | None, typer.Option("--curve", metavar="CURVE", help="Only this curve.")] = None,
-    start: Annotated[str | None, typer.Option("--start", metavar="TENOR",
-                                              help="Only forecasts starting this far ahead (e.g. 1Y).")] = None,
-    tenor: Annotated[str | None, typer.Option("--tenor", metavar="TENOR",
-                                              help="Only forecasts of this tenor (e.g. 3M).")] = None,
-    first: Annotated[str | None, typer.Option("--from", metavar="DATE", help="First as-of date (YYYY-MM-DD).")] = None,
-    last: Annotated[str | None, typer.Option("--to", metavar="DATE", help="Last as-of date (YYYY-MM-DD).")] = None,
-    fmt: Annotated[str, typer.Option("--format", metavar="FORMAT", help="table | csv | json")] = "table",
+    curve: CurveOption = None,
+    start: StartOption = None,
+    tenor: TenorOption = None,
+    first: FromOption = None,
+    last: ToOption = None,
+    fmt: TableFormatOption = "table",
     as_known_at: KnownAtOption = None,
     config: ConfigOption = None,
 ) -> None:
     """Score the forwards against every contender forecast: errors, tests and the confidence set by horizon."""
-    if fmt not in ("table", "csv", "json"):
-        raise _Exit(f"--format {fmt!r} is not allowed; allowed: table, csv, json", 2)
+    _table_format(fmt)
     s_months, t_months = _months_option(start, "--start"), _months_option(tenor, "--tenor")
     from flows.compare_step import run_compare
     from flows.output import print_compare
@@ -591,14 +562,13 @@ def compare(
 def changes(
     since: Annotated[str, typer.Option("--since", metavar="TS", help="Since this time (ISO 8601; UTC when no zone "
                                                                      "is given).")],
-    curve: Annotated[str | None, typer.Option("--curve", metavar="CURVE", help="Only this curve.")] = None,
-    fmt: Annotated[str, typer.Option("--format", metavar="FORMAT", help="table | csv | json")] = "table",
+    curve: CurveOption = None,
+    fmt: TableFormatOption = "table",
     config: ConfigOption = None,
 ) -> None:
     """What changed in the record since a time, and why: restated quotes, rebuilt days, superseded outcomes,
     audit cells that moved."""
-    if fmt not in ("table", "csv", "json"):
-        raise _Exit(f"--format {fmt!r} is not allowed; allowed: table, csv, json", 2)
+    _table_format(fmt)
     from flows.changes_step import change_rows, changes_since
     from flows.known_at_step import parse_known_at
     from flows.output import print_changes
@@ -610,7 +580,7 @@ def changes(
 
 @app.command()
 def model(
-    curve: Annotated[str | None, typer.Option("--curve", metavar="CURVE", help="Only this curve.")] = None,
+    curve: CurveOption = None,
     factors: Annotated[int | None, typer.Option("--factors", metavar="K",
                                                 help="Principal components in the model's state (default: "
                                                      "model.factors, 5).")] = None,
@@ -644,9 +614,9 @@ def model(
 def report(
     out: Annotated[Path | None, typer.Option("--out", metavar="DIR", help="Folder for the report (default: reports/ "
                                              "beside the config).")] = None,
-    curve: Annotated[str | None, typer.Option("--curve", metavar="CURVE", help="Only this curve.")] = None,
-    first: Annotated[str | None, typer.Option("--from", metavar="DATE", help="First as-of date (YYYY-MM-DD).")] = None,
-    last: Annotated[str | None, typer.Option("--to", metavar="DATE", help="Last as-of date (YYYY-MM-DD).")] = None,
+    curve: CurveOption = None,
+    first: FromOption = None,
+    last: ToOption = None,
     as_known_at: KnownAtOption = None,
     config: ConfigOption = None,
 ) -> None:

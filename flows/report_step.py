@@ -16,6 +16,7 @@ from pathlib import Path
 
 import pandas as pd
 
+from pipeline.checks import pair_spreads
 from pipeline.config import Config, CurveConfig
 from pipeline.report import CurveReport, ReportData, choose_pairs, render_report
 from warehouse import report as store
@@ -84,7 +85,19 @@ def _curve_report(con, cfg: Config, name: str, first: str | None, last: str | No
         pending=store.pending(con, name, first, last), notes=tuple(notes),
         contender_scores=scores, confidence_set=mcs, contender_verdicts=verdicts, compared=compared,
         model_premium=store.model_premium(con, name, MODEL_PREMIUM_MONTHS, first, last),
+        errors=store.error_series(con, name, premium_tenor, first, last), spreads=_spreads(con, c, first, last),
+        all_pairs=tuple((a.label, b.label) for a, b in c.inversion_pairs),
     )
+
+
+def _spreads(con, c: CurveConfig, first: str | None, last: str | None) -> pd.DataFrame:  # noqa: ANN001
+    """Every inversion pair's spread over the window, judged as the inversion check judges it."""
+    tenors = list(dict.fromkeys(t.label for pair in c.inversion_pairs for t in pair))
+    q = store.pair_quotes(con, c.name, tenors, first, last)
+    if q.empty:
+        return pd.DataFrame()
+    wide = q.pivot_table(index="as_of", columns="tenor", values="rate", aggfunc="last").reindex(columns=tenors)
+    return pair_spreads(wide.index.to_numpy(), tenors, wide.to_numpy(dtype=float), c)
 
 
 def _same_day(a: object, b: str | None) -> bool:
@@ -142,13 +155,15 @@ def gather_report(cfg: Config, curve: str | None = None, first: str | None = Non
         findings = store.findings_in_scope(con, names, first, last)
         held = store.findings_in_scope(con, names, first, last, rejects_only=True)
         rejected = store.rejected_in_scope(con, names)
+        acceptances = store.acceptances(con, names, first, last)
+        scenarios = store.what_if_builds(con, names, first, last)
         if first or last:  # rejected rows carry no date: keep those of the files in scope
             rejected = rejected[rejected["load_id"].isin(loads["load_id"])].reset_index(drop=True)
     return ReportData(
         generated_at=generated, program_version=program_version(), schema_version=schema, curves=curves,
         store_path=str(cfg.store_path), config_path=str(cfg.path) if cfg.path else "",
         window=(first, last), as_known_at=as_known_at, loads=loads, builds=builds, findings=findings, held=held,
-        rejected_rows=rejected,
+        rejected_rows=rejected, acceptances=acceptances, scenarios=scenarios,
     )
 
 

@@ -47,6 +47,7 @@ __all__ = [
     "empty_findings",
     "inversion_episodes",
     "inversions",
+    "pair_spreads",
     "pairs_inverted_first",
     "jumps",
     "missing_days",
@@ -505,6 +506,23 @@ def _pair_spreads(
             cs, cl = c[:, col[s]], c[:, col[lg]]
             pairs.append((s, lg, cs, cl, cl - cs))
     return days, pairs
+
+
+def pair_spreads(as_of: Any, tenors: Sequence[str], rates: Any, cfg: CurveConfig) -> pd.DataFrame:
+    """The spread of every configured inversion pair as the inversion check judges it: long minus
+    short, in bp, of the quotes (implied continuous zero rates for a discount curve).
+
+    ``as_of`` ``(N,)``, ``rates`` ``(N, len(tenors))`` decimals (NaN where not quoted). Returns the
+    columns ``as_of, short_tenor, long_tenor, spread_bp``, one row per day a pair has both quotes.
+    """
+    days, pairs = _pair_spreads(as_of, tenors, rates, cfg)
+    frames = [pd.DataFrame({"as_of": days[ok].astype("datetime64[s]"), "short_tenor": s, "long_tenor": lg,
+                            "spread_bp": spread[ok] * BP})
+              for s, lg, _, _, spread in pairs for ok in [~np.isnan(spread)]]
+    if not frames:
+        return pd.DataFrame({"as_of": pd.Series([], dtype="datetime64[s]"), "short_tenor": pd.Series([], dtype=object),
+                             "long_tenor": pd.Series([], dtype=object), "spread_bp": pd.Series([], dtype=float)})
+    return pd.concat(frames, ignore_index=True)
 
 
 def pairs_inverted_first(as_of: Any, tenors: Sequence[str], rates: Any, cfg: CurveConfig, *,

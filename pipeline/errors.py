@@ -6,6 +6,8 @@ exit status for it: 2 for bad usage or a bad config, 1 for everything else.
     AfterwardError
     ├── ConfigError        a bad afterward.toml (key, value, convention)         exit 2
     ├── TenorError         a tenor label that cannot be read                     exit 2
+    ├── ArgumentError      an argument that cannot be read or is refused         exit 2
+    │                      (a malformed date, a query that writes)
     ├── UserError          a request that cannot be carried out (a missing file) exit 1
     ├── ModelInputError    data or settings the term-structure model cannot use  exit 2
     │                      (pipeline.term_structure.errors)
@@ -19,9 +21,8 @@ exit status for it: 2 for bad usage or a bad config, 1 for everything else.
 
 from __future__ import annotations
 
-__all__ = ["AfterwardError", "ConfigError", "ForecastRequestError", "KnownAtError", "RunInProgress",
-           "StoreError", "StoreLocked", "StoreMissing",
-           "TenorError", "UserError"]
+__all__ = ["AfterwardError", "ArgumentError", "ConfigError", "ForecastRequestError", "KnownAtError",
+           "RunInProgress", "StoreError", "StoreLocked", "StoreMissing", "TenorError", "UserError"]
 
 
 class AfterwardError(Exception):
@@ -38,6 +39,13 @@ class ConfigError(AfterwardError, ValueError):
 
 class TenorError(AfterwardError, ValueError):
     """A tenor label that cannot be read."""
+
+    exit_code = 2
+
+
+class ArgumentError(AfterwardError, ValueError):
+    """An argument that cannot be read (a malformed date) or is refused (a query that would write);
+    the message names the argument and what is allowed. Times for as-known-at: :class:`KnownAtError`."""
 
     exit_code = 2
 

@@ -55,25 +55,34 @@ class Estimate:
     full_problem: str | None
 
 
-def built_days(con, curve: str) -> tuple[np.ndarray, np.ndarray]:  # noqa: ANN001
+_ON_DAY = "($on IS NULL OR b.as_of = CAST($on AS DATE))"
+
+
+def _day(on: object) -> str | None:
+    return None if on is None else str(np.datetime64(on, "D"))
+
+
+def built_days(con, curve: str, on: object = None) -> tuple[np.ndarray, np.ndarray]:  # noqa: ANN001
     """The official built days of ``curve`` ``(D,)`` datetime64[D], sorted, and when each was built
-    ``(D,)`` datetime64[us]."""
-    t = con.sql("SELECT as_of, built_at FROM built_day WHERE curve = $curve AND scenario = 'official' "
-                "ORDER BY as_of", params={"curve": curve}).to_arrow_table()
+    ``(D,)`` datetime64[us]; with ``on`` (a day), that day only (none when it was not built)."""
+    t = con.sql(f"SELECT as_of, built_at FROM built_day b WHERE curve = $curve AND scenario = 'official' "
+                f"AND {_ON_DAY} ORDER BY as_of", params={"curve": curve, "on": _day(on)}).to_arrow_table()
     return t["as_of"].to_numpy().astype("datetime64[D]"), t["built_at"].to_numpy().astype("datetime64[us]")
 
 
-def stored_curves(con, curve: str) -> StoredCurves:  # noqa: ANN001
-    """The official built curves of ``curve``: every built day's nodes at its quoted tenors."""
-    days, built_at = built_days(con, curve)
+def stored_curves(con, curve: str, on: object = None) -> StoredCurves:  # noqa: ANN001
+    """The official built curves of ``curve``: every built day's nodes at its quoted tenors; with
+    ``on`` (a day), that day's only (``D = 0`` when it was not built)."""
+    days, built_at = built_days(con, curve, on)
+    params_on = {"curve": curve, "on": _day(on)}
     meta = con.sql("SELECT b.as_of, b.method, f.params FROM built_day b LEFT JOIN curve_fit f ON "
                    "f.curve = b.curve AND f.scenario = b.scenario AND f.as_of = b.as_of "
-                   "WHERE b.curve = $curve AND b.scenario = 'official' ORDER BY b.as_of",
-                   params={"curve": curve}).to_arrow_table()
+                   f"WHERE b.curve = $curve AND b.scenario = 'official' AND {_ON_DAY} ORDER BY b.as_of",
+                   params=params_on).to_arrow_table()
     pts = con.sql("SELECT b.as_of, z.tenor, z.year_fraction, z.zero_rate_cc FROM zero_point z "
                   "JOIN built_day b ON b.build_key = z.build_key "
-                  "WHERE b.curve = $curve AND b.scenario = 'official' AND z.quoted",
-                  params={"curve": curve}).to_arrow_table()
+                  f"WHERE b.curve = $curve AND b.scenario = 'official' AND z.quoted AND {_ON_DAY}",
+                  params=params_on).to_arrow_table()
     params = np.full((days.size, 6), np.nan)
     for i, p in enumerate(meta["params"].to_pylist()):  # NSS days only carry parameters
         if p is not None:

@@ -10,9 +10,9 @@ import pandas as pd
 from warehouse.frames import read_frame
 from warehouse.query import fetch_one
 
-__all__ = ["comparison", "curve_span", "episodes", "findings_in_scope", "history", "loads_in_scope", "model_premium",
-           "official_builds", "outcome_pairs", "outcome_version", "pending", "premium", "rejected_in_scope",
-           "stored_summary"]
+__all__ = ["acceptances", "comparison", "curve_span", "episodes", "error_series", "findings_in_scope", "history",
+           "loads_in_scope", "model_premium", "official_builds", "outcome_pairs", "outcome_version", "pair_quotes",
+           "pending", "premium", "rejected_in_scope", "stored_summary", "what_if_builds"]
 
 Con = duckdb.DuckDBPyConnection
 
@@ -170,3 +170,54 @@ def model_premium(con: Con, curve: str, months: tuple[int, ...], first: str | No
                                WHERE p.curve = ? AND p.fit = 'realtime'
                                  AND p.maturity_months IN ({', '.join(str(int(m)) for m in months)}){w}
                                ORDER BY p.as_of, p.maturity_months""", [curve, *wp])
+
+
+def acceptances(con: Con, curves: list[str], first: str | None, last: str | None) -> pd.DataFrame:
+    """Every acceptance of the curves' days in the window, lapsed ones too: ``curve, as_of, accepted_by,
+    accepted_at, reason, in_force`` (a row of ``acceptance_in_force``) and ``findings``, the day's
+    unresolved findings as ``check (severity, tenor)`` joined by ``"; "``."""
+    ph = ", ".join("?" for _ in curves)
+    w, wp = _window("a.as_of", first, last)
+    return read_frame(
+        con,
+        "SELECT a.curve, a.as_of, a.accepted_by, a.accepted_at, a.note AS reason, "
+        "EXISTS (SELECT 1 FROM acceptance_in_force i WHERE i.curve = a.curve AND i.as_of = a.as_of "
+        "AND i.accepted_at = a.accepted_at) AS in_force, "
+        "(SELECT string_agg(f.check_name || ' (' || f.severity || coalesce(', ' || f.tenor, '') || ')', '; ' "
+        "ORDER BY f.check_name, f.tenor) FROM findings f WHERE f.curve = a.curve AND f.as_of = a.as_of) AS findings "
+        f"FROM acceptance a WHERE a.curve IN ({ph}){w} ORDER BY a.curve, a.as_of, a.accepted_at",
+        [*curves, *wp])
+
+
+def what_if_builds(con: Con, curves: list[str], first: str | None, last: str | None) -> pd.DataFrame:
+    """Every scenario other than the official one, by curve, scenario, method and program version:
+    ``days, first_day, last_day`` built and ``built_at`` (the latest build)."""
+    ph = ", ".join("?" for _ in curves)
+    w, wp = _window("as_of", first, last)
+    return read_frame(
+        con,
+        "SELECT curve, scenario, method, code_version, count(*) AS days, min(as_of) AS first_day, "
+        "max(as_of) AS last_day, max(built_at) AS built_at FROM built_day "
+        f"WHERE scenario <> 'official' AND curve IN ({ph}){w} "
+        "GROUP BY curve, scenario, method, code_version ORDER BY curve, scenario, first_day", [*curves, *wp])
+
+
+def error_series(con: Con, curve: str, tenor_months: int | None, first: str | None, last: str | None) -> pd.DataFrame:
+    """as_of, start_months, tenor_months, error_bp: the current outcomes of one tenor at every start
+    after 0, over the window."""
+    if tenor_months is None:
+        return pd.DataFrame()
+    w, wp = _window("as_of", first, last)
+    return read_frame(con, "SELECT as_of, start_months, tenor_months, error_bp FROM outcomes WHERE curve = ? "
+                           f"AND tenor_months = ? AND start_months > 0{w} ORDER BY start_months, as_of",
+                      [curve, int(tenor_months), *wp])
+
+
+def pair_quotes(con: Con, curve: str, tenors: list[str], first: str | None, last: str | None) -> pd.DataFrame:
+    """as_of, tenor, rate: the current quotes of ``tenors`` (canonical labels) in the window."""
+    if not tenors:
+        return pd.DataFrame()
+    w, wp = _window("as_of", first, last)
+    ph = ", ".join("?" for _ in tenors)
+    return read_frame(con, f"SELECT as_of, tenor, rate FROM quotes WHERE curve = ? AND tenor IN ({ph}){w} "
+                           "ORDER BY as_of", [curve, *tenors, *wp])

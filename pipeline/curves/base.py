@@ -8,6 +8,8 @@ the discount factor, ``-integral_0^t f(s) ds``) and ``inst_forward(t)`` for time
 :class:`CurveSet` stitches the blocks of all days together and derives everything else (discount
 factors, zero rates and forward rates in any compounding) from ``ln_discount``: the log is kept
 instead of the discount factor itself so that short-end rates do not lose digits to ``1 - D``.
+Its methods take year fractions or dates: a date is turned into the year fraction from each day's
+as-of date on the curve's day count, so a caller never converts by hand.
 """
 
 from __future__ import annotations
@@ -17,6 +19,8 @@ from collections.abc import Callable, Sequence
 import numpy as np
 
 from pipeline.compounding import from_continuous
+from pipeline.dates import as_days, year_fraction
+from pipeline.errors import ArgumentError
 
 __all__ = ["Block", "CurveSet", "gather", "segment_index"]
 
@@ -127,7 +131,31 @@ class CurveSet:
         return list(self._blocks)
 
     # --- evaluation --------------------------------------------------------------------------------
+    @staticmethod
+    def _dates(t: object) -> np.ndarray | None:
+        """``t`` as ``datetime64[D]`` when it holds dates, else None (it holds year fractions)."""
+        arr = np.asarray(t)
+        if arr.dtype.kind in "biuf":
+            return None
+        if arr.dtype == object:
+            try:  # numbers held as objects (a mixed list) are year fractions
+                arr.astype(float)
+                return None
+            except (TypeError, ValueError):
+                pass
+        try:
+            return as_days(arr)
+        except (TypeError, ValueError):
+            raise ArgumentError(f"not a date (YYYY-MM-DD) or a year fraction: {arr.reshape(-1)[:3].tolist()!r}"
+                                ) from None
+
     def _times(self, t: object) -> np.ndarray:
+        days = self._dates(t)
+        if days is not None:
+            shaped = days.reshape(1, 1) if days.ndim == 0 else days.reshape(1, -1) if days.ndim == 1 else days
+            if shaped.ndim != 2 or shaped.shape[0] not in (1, len(self)):
+                raise ValueError(f"dates must be (D, K) with D = {len(self)} or (K,), got {days.shape}")
+            t = year_fraction(self.as_of[:, None], shaped, self.day_count)
         arr = np.asarray(t, dtype=float)
         if arr.ndim == 0:
             arr = arr.reshape(1, 1)
@@ -194,10 +222,16 @@ class CurveSet:
 
     def forward_rate(self, t1: object, t2: object, compounding: str = "continuous") -> np.ndarray:
         """Forward rate over ``[t1, t2]`` from ``D(t1) / D(t2)`` with ``tau = t2 - t1``, in
-        ``compounding``. Where ``t1 == t2`` the instantaneous forward is returned."""
+        ``compounding``. When both ends are dates, ``tau = year_fraction(t1, t2, day_count)`` (the
+        accrual of the period itself, as the stored forwards have it; on 30/360 it can differ from
+        the difference of the two times). Where ``t1 == t2`` the instantaneous forward is returned."""
         a, b = self._times(t1), self._times(t2)
         a, b = np.broadcast_arrays(a, b)
-        tau = b - a
+        d1, d2 = self._dates(t1), self._dates(t2)
+        if d1 is not None and d2 is not None:
+            tau = np.broadcast_to(year_fraction(d1, d2, self.day_count), a.shape)
+        else:
+            tau = b - a
         with np.errstate(invalid="ignore", divide="ignore"):
             rcc = (self.ln_discount(a) - self.ln_discount(b)) / np.where(tau == 0.0, np.nan, tau)
         if np.any(tau == 0.0):

@@ -15,7 +15,9 @@ import matplotlib.dates as mdates
 import numpy as np
 import pandas as pd
 from matplotlib import colormaps
-from matplotlib.colors import LogNorm
+from matplotlib.cm import ScalarMappable
+from matplotlib.colors import ListedColormap, Normalize
+from matplotlib.lines import Line2D
 from matplotlib.patches import Patch
 
 from pipeline.report.fmt import months_label
@@ -28,12 +30,15 @@ __all__ = [
     "Chart",
     "contender_rmse_chart",
     "error_chart",
+    "error_time_chart",
     "findings_chart",
     "forwards_chart",
     "history_chart",
     "model_premium_chart",
     "premium_chart",
+    "premium_regime_chart",
     "rmse_chart",
+    "spreads_chart",
 ]
 
 WIDTH = 9.6  # inches; 72 pt each, scaled to the page width by the browser
@@ -43,6 +48,7 @@ HEAT_COLUMNS = 1600
 TENOR_COLOURS = [OKABE_ITO[k] for k in ("blue", "vermillion", "green", "purple", "orange", "sky", "black")]
 FORWARD, REALISED, NO_CHANGE = OKABE_ITO["vermillion"], OKABE_ITO["black"], OKABE_ITO["sky"]
 SHADE = OKABE_ITO["purple"]
+SEVERITY_FILL = {"reject": OKABE_ITO["vermillion"], "warn": OKABE_ITO["orange"], "info": OKABE_ITO["blue"]}
 PERIOD_WORD = {"day": "day", "week": "week", "month": "month", "quarter": "quarter", "year": "year"}
 
 
@@ -59,21 +65,30 @@ def _days(values: object) -> np.ndarray:
     return np.asarray(pd.to_datetime(pd.Series(values)).to_numpy().astype("datetime64[D]"))
 
 
-def _date_axis(ax, first: np.datetime64, last: np.datetime64) -> None:  # noqa: ANN001
-    """Year ticks for long spans, ISO months for shorter ones, ISO days for a few weeks."""
+def _date_axis(ax, first: np.datetime64, last: np.datetime64, width_in: float = WIDTH - 1.0) -> None:  # noqa: ANN001
+    """Year ticks for long spans, ISO months for shorter ones, ISO days for a few weeks.
+
+    ``width_in``: the axes' width in inches; the number of ticks is held to what fits there without
+    two labels touching (a "YYYY-MM" label at the tick font is about 0.45 in wide, a year 0.3 in, a
+    "YYYY-MM-DD" 0.65 in; a label's width again is left free between two).
+    """
     span = (last - first).astype("timedelta64[D]").astype(int)
     if span > 3 * 365:
+        fit = max(int(width_in / 0.5), 2)
         years = max(span / 365.25, 1.0)
-        base = next(b for b in (1, 2, 5, 10, 20, 50) if years / b <= 12)
+        base = next((b for b in (1, 2, 5, 10, 20, 50, 100) if years / b <= fit), 100)
         ax.xaxis.set_major_locator(mdates.YearLocator(base))
         ax.xaxis.set_major_formatter(mdates.DateFormatter("%Y"))
     elif span > 62:
+        fit = max(int(width_in / 0.65), 2)
         months = max(span / 30.4, 1.0)
-        step = next(s for s in (1, 2, 3, 6, 12) if months / s <= 10)
-        ax.xaxis.set_major_locator(mdates.MonthLocator(interval=step))
+        step = next((s for s in (1, 2, 3, 6, 12, 24) if months / s <= fit), 24)
+        ax.xaxis.set_major_locator(mdates.MonthLocator(bymonth=range(1, 13, step) if 12 % step == 0 else None,
+                                                       interval=1 if 12 % step == 0 else step))
         ax.xaxis.set_major_formatter(mdates.DateFormatter("%Y-%m"))
     else:
-        ax.xaxis.set_major_locator(mdates.AutoDateLocator(minticks=3, maxticks=8))
+        fit = max(int(width_in / 1.0), 2)
+        ax.xaxis.set_major_locator(mdates.AutoDateLocator(minticks=2, maxticks=min(8, fit)))
         ax.xaxis.set_major_formatter(mdates.DateFormatter("%Y-%m-%d"))
     pad = np.timedelta64(max(int(span * 0.01), 1), "D")
     ax.set_xlim(mdates.date2num(first - pad), mdates.date2num(last + pad))
@@ -118,16 +133,16 @@ def findings_chart(findings: pd.DataFrame, check_order: tuple[str, ...], first: 
     counts = np.zeros((len(rows), k1 - k0 + 1))
     np.add.at(counts, (frame["row"].to_numpy(), frame["col"].to_numpy()), 1)
     n_rows, n_cols = counts.shape
+    # colour says how serious (one reject outweighs many infos), the number says how many
+    level = rows["severity"].map({"info": 1, "warn": 2, "reject": 3}).fillna(1).to_numpy(dtype=float)
+    shade = np.where(counts > 0, level[:, None], 0.0)
+    fills = ["#ffffff", SEVERITY_FILL["info"], SEVERITY_FILL["warn"], SEVERITY_FILL["reject"]]
     title = f"Open findings by check and {period}"
     with chart_style():
-        fig = new_figure(WIDTH, 1.25 + 0.27 * n_rows)
+        fig = new_figure(WIDTH, 1.45 + 0.27 * n_rows)
         ax = fig.add_subplot()
-        cmap = colormaps["cividis_r"].copy()
-        cmap.set_bad("#ffffff")
-        masked = np.ma.masked_less(counts, 0.5)
-        vmax = max(float(counts.max()), 10.0)  # at least a decade, so the log scale has readable ticks
-        image = ax.imshow(masked, aspect="auto", interpolation="none", cmap=cmap, norm=LogNorm(1, vmax),
-                          extent=(-0.5, n_cols - 0.5, n_rows - 0.5, -0.5))
+        ax.imshow(shade, aspect="auto", interpolation="none", cmap=ListedColormap(fills), vmin=-0.5, vmax=3.5,
+                  extent=(-0.5, n_cols - 0.5, n_rows - 0.5, -0.5))
         ax.grid(False)
         ax.set_yticks(range(n_rows), [f"{c} \u00b7 {k} ({s})" for c, k, s in
                                       rows[["curve", "check", "severity"]].itertuples(index=False)])
@@ -141,17 +156,15 @@ def findings_chart(findings: pd.DataFrame, check_order: tuple[str, ...], first: 
         ax.tick_params(which="minor", length=0)
         ax.set_xlabel(f"{period.capitalize()} of the as-of date")
         ax.set_title(title)
-        if n_cols <= 40:
-            norm = image.norm
-            for r, c in zip(*np.nonzero(counts), strict=True):
-                shade = norm(counts[r, c])
-                ax.text(c, r, f"{int(counts[r, c]):,}", ha="center", va="center", fontsize=6.5,
-                        color="#ffffff" if shade > 0.55 else INK)
-        bar = fig.colorbar(image, ax=ax, pad=0.01, fraction=0.03)
-        bar.set_label(f"Findings per {period} (log scale)")
+        size = 6.5 if n_cols <= 40 else max(3.5, 6.5 * 40 / n_cols)
+        for r, c in zip(*np.nonzero(counts), strict=True):
+            ink = "#ffffff" if shade[r, c] in (1.0, 3.0) else INK
+            ax.text(c, r, f"{int(counts[r, c]):,}", ha="center", va="center", fontsize=size, color=ink)
+        ax.legend(handles=[Patch(facecolor=SEVERITY_FILL[k], label=k) for k in ("reject", "warn", "info")],
+                  title="Severity", loc="upper left", bbox_to_anchor=(1.0, 1.0))
         svg = figure_svg(fig, prefix, title)
-    caption = (f"Each cell counts the open findings of one check on as-of dates in that {period}; "
-               "a blank cell has none. Severity in brackets.")
+    caption = (f"The number in a cell counts the open findings of one check on as-of dates in that {period}; "
+               "its colour is the check's severity (reject, warn, info), whatever the count; a blank cell has none.")
     return Chart(svg, title, caption)
 
 
@@ -181,6 +194,31 @@ def _episode_spans(episodes: pd.DataFrame, pair: tuple[str, str] | None) -> list
     return list(zip(a.tolist(), (b - a).tolist(), strict=True))
 
 
+def _maturity_rows(tenors: list[str]) -> tuple[np.ndarray, np.ndarray]:
+    """(centre, edges) of each tenor's strip on a log10-years axis: centres at the maturities, edges
+    halfway between neighbours (half a gap beyond the first and the last)."""
+    y = np.log10(np.array([parse_tenor(t).approx_days / 365.25 for t in tenors]))
+    if y.size == 1:
+        return y, np.array([y[0] - 0.5, y[0] + 0.5])
+    mid = (y[1:] + y[:-1]) / 2
+    return y, np.r_[y[0] - (y[1] - y[0]) / 2, mid, y[-1] + (y[-1] - y[-2]) / 2]
+
+
+def _spaced(y: np.ndarray, min_gap: float) -> list[int]:
+    """Positions of ``y`` (ascending) to label: the first, then each at least ``min_gap`` above the last
+    kept, the longest always (dropping its neighbour instead when the two are too close)."""
+    kept = [0]
+    for j in range(1, len(y)):
+        if y[j] - y[kept[-1]] >= min_gap:
+            kept.append(j)
+    last = len(y) - 1
+    if kept[-1] != last:
+        if len(kept) > 1 and y[last] - y[kept[-1]] < min_gap:
+            kept.pop()
+        kept.append(last)
+    return kept
+
+
 def history_chart(curve: CurveReport, prefix: str) -> Chart | None:
     """A heatmap of the curve (tenor x date, colour = rate in %) over a few tenors as lines, with the
     inversion episodes of ``curve.inversion_pair`` shaded in the lower panel."""
@@ -188,6 +226,7 @@ def history_chart(curve: CurveReport, prefix: str) -> Chart | None:
     if h.empty:
         return None
     tenors = [t for t in curve.tenors if t in set(h["tenor"].astype(str))] or sorted(set(h["tenor"].astype(str)))
+    tenors = sorted(tenors, key=lambda t: parse_tenor(t).approx_days)
     frame = pd.DataFrame({"as_of": _days(h["as_of"]), "tenor": h["tenor"].astype(str).to_numpy(),
                           "rate": h["rate"].to_numpy(dtype=float)})
     frame = frame[frame["tenor"].isin(tenors)]
@@ -214,13 +253,24 @@ def history_chart(curve: CurveReport, prefix: str) -> Chart | None:
         top, bottom = fig.subplots(2, 1, sharex=True, height_ratios=[1.15, 1.0])
         cmap = colormaps["cividis"].copy()
         cmap.set_bad("#ebe8e2")
-        image = top.imshow(mat, aspect="auto", interpolation="none", cmap=cmap, origin="lower",
-                           extent=(x0, x1, -0.5, len(tenors) - 0.5))
+        finite = mat[np.isfinite(mat)]
+        norm = Normalize(float(finite.min()), float(finite.max())) if finite.size else Normalize(0.0, 1.0)
+        # each tenor is a strip placed at its maturity (log years), so 10Y to 30Y looks as far as it is
+        y, edges = _maturity_rows(tenors)
+        seam = 0.004 * (edges[-1] - edges[0])  # each strip runs under the next: no hairline gap between
+        for j in range(len(tenors)):
+            top.imshow(mat[j:j + 1], aspect="auto", interpolation="none", cmap=cmap, norm=norm, origin="lower",
+                       extent=(x0, x1, edges[j], edges[j + 1] + (seam if j + 1 < len(tenors) else 0.0)))
+        top.set_xlim(x0, x1)
+        top.set_ylim(edges[0], edges[-1])
         top.grid(False)
-        top.set_yticks(range(len(tenors)), tenors)
-        top.set_ylabel("Tenor")
+        shown = _spaced(y, min_gap=0.055 * (edges[-1] - edges[0]))
+        top.set_yticks(y[shown], [tenors[j] for j in shown])
+        top.set_yticks(y, minor=True)
+        top.tick_params(axis="y", which="minor", length=2)
+        top.set_ylabel("Tenor (by maturity, log scale)")
         top.set_title(title)
-        bar = fig.colorbar(image, ax=top, pad=0.01, fraction=0.03)
+        bar = fig.colorbar(ScalarMappable(norm=norm, cmap=cmap), ax=top, pad=0.01, fraction=0.03)
         bar.set_label("Rate (%)")
         handles = []
         for colour, tenor in zip(TENOR_COLOURS, _line_tenors(tuple(tenors)), strict=False):
@@ -240,7 +290,8 @@ def history_chart(curve: CurveReport, prefix: str) -> Chart | None:
                       fontsize=7.5, borderaxespad=0.2)
         _date_axis(bottom, first, last)
         svg = figure_svg(fig, prefix, title)
-    caption = (f"Upper panel: {_thinned_note(heat_period)}; grey cells: no curve. Lower panel: "
+    caption = (f"Upper panel: {_thinned_note(heat_period)}; each tenor's strip sits at its maturity on a log "
+               "scale (every quoted tenor has a minor tick); grey cells: no curve. Lower panel: "
                f"{_thinned_note(line_period)}"
                + (f"; shaded: days the {curve.inversion_pair[0]} quote was above the {curve.inversion_pair[1]} "
                   "quote (inversion episodes)." if spans else "."))
@@ -410,7 +461,7 @@ def premium_chart(curve: CurveReport, prefix: str) -> Chart | None:
                 ax.set_ylabel("Premium (bp)")
             if i >= len(starts) - cols:
                 ax.set_xlabel("As-of date (end of window)")
-            _date_axis(ax, first, last)
+            _date_axis(ax, first, last, WIDTH / cols - 0.5)
             ax.tick_params(axis="x", labelbottom=True)
             if i == 0:
                 handles = [ln, band]
@@ -488,4 +539,151 @@ def contender_rmse_chart(curve: CurveReport, prefix: str) -> Chart | None:
         svg = figure_svg(fig, prefix, title)
     caption = ("Lower is better. Each cell's contenders are scored on the as-of days all of them have an "
                "outcome, so the points of one horizon compare like with like.")
+    return Chart(svg, title, caption)
+
+
+# ---- charts reviewers look for --------------------------------------------------------------------
+
+REGIME_STYLE = {"normal": (OKABE_ITO["blue"], "o"), "inverted": (OKABE_ITO["vermillion"], "s"),
+                "all": (OKABE_ITO["black"], "D")}
+
+
+def _shade(ax, spans: list[tuple[float, float]]) -> None:  # noqa: ANN001
+    if spans:
+        ax.broken_barh(spans, (0, 1), transform=ax.get_xaxis_transform(), facecolor=SHADE, alpha=0.22, linewidth=0)
+
+
+def spreads_chart(curve: CurveReport, prefix: str) -> Chart | None:
+    """The spread (long minus short, bp) of every configured inversion pair over time, one panel per
+    pair, each with its own inversion episodes shaded."""
+    sp = curve.spreads
+    if sp is None or sp.empty:
+        return None
+    pairs = [p for p in (curve.all_pairs or tuple(dict.fromkeys(zip(sp["short_tenor"], sp["long_tenor"],
+                                                                     strict=True))))
+             if ((sp["short_tenor"] == p[0]) & (sp["long_tenor"] == p[1])).any()]
+    if not pairs:
+        return None
+    days = _days(sp["as_of"])
+    first, last = days.min(), days.max()
+    period = choose_period(np.unique(days), LINE_POINTS)
+    title = f"{curve.name}: the spread of each inversion pair"
+    with chart_style():
+        fig = new_figure(WIDTH, 0.9 + 1.8 * len(pairs))
+        axes = np.atleast_1d(fig.subplots(len(pairs), 1, sharex=True, squeeze=False)).ravel()
+        for ax, (short, long) in zip(axes, pairs, strict=True):
+            part = sp[(sp["short_tenor"] == short) & (sp["long_tenor"] == long)]
+            part = thin_frame(part.assign(as_of=_days(part["as_of"])), "as_of", period)
+            _shade(ax, _episode_spans(curve.episodes, (short, long)))
+            ax.axhline(0.0, color=MUTED, linewidth=0.7)
+            ax.plot(part["as_of"].to_numpy(), part["spread_bp"].to_numpy(dtype=float), color=OKABE_ITO["blue"],
+                    linewidth=0.9)
+            ax.set_title(f"{long} minus {short}", fontsize=8.5)
+            ax.set_ylabel("Spread (bp)")
+        axes[-1].set_xlabel("As-of date")
+        _date_axis(axes[-1], first, last)
+        fig.legend(handles=[Patch(facecolor=SHADE, alpha=0.22, label="inverted (episode)")], loc="upper right",
+                   bbox_to_anchor=(1.0, 1.0))
+        fig.suptitle(title, x=0.01, ha="left", color=INK)
+        svg = figure_svg(fig, prefix, title)
+    caption = (f"Long minus short quote, as the inversion check compares them; {_thinned_note(period)}. Shaded: "
+               "that pair's inversion episodes (runs of days with the short quote above the long one).")
+    return Chart(svg, title, caption)
+
+
+def error_time_chart(curve: CurveReport, prefix: str) -> Chart | None:
+    """The forecast error (forward minus realised, bp) of the ``curve.premium_tenor`` forwards by as-of
+    date, one panel per start, with the inversion episodes of ``curve.inversion_pair`` shaded."""
+    e = curve.errors
+    if e is None or e.empty:
+        return None
+    e = e[e["start_months"] > 0]
+    if e.empty:
+        return None
+    starts = sorted(e["start_months"].unique())
+    cols = min(3, len(starts))
+    rows = int(np.ceil(len(starts) / cols))
+    as_of = _days(e["as_of"])
+    first, last = as_of.min(), as_of.max()
+    period = choose_period(np.unique(as_of), PANEL_POINTS)
+    spans = _episode_spans(curve.episodes, curve.inversion_pair)
+    tenor = months_label(curve.premium_tenor) if curve.premium_tenor else months_label(e["tenor_months"].iloc[0])
+    title = f"{curve.name}: forecast error of the {tenor} forward over time, by start"
+    with chart_style():
+        fig = new_figure(WIDTH, 0.7 + 2.0 * rows)
+        axes = np.atleast_1d(fig.subplots(rows, cols, sharex=True, sharey=True, squeeze=False)).ravel()
+        for i, ax in enumerate(axes):
+            if i >= len(starts):
+                ax.set_visible(False)
+                continue
+            st = starts[i]
+            part = e[e["start_months"] == st].assign(as_of=lambda f: _days(f["as_of"]))
+            part = thin_frame(part, "as_of", period)
+            _shade(ax, spans)
+            ax.axhline(0.0, color=MUTED, linewidth=0.7)
+            ax.plot(part["as_of"].to_numpy(), part["error_bp"].to_numpy(dtype=float), color=FORWARD, linewidth=0.9)
+            ax.set_title(f"{months_label(st)} ahead", fontsize=8.5)
+            if i % cols == 0:
+                ax.set_ylabel("Error (bp)")
+            if i >= len(starts) - cols:
+                ax.set_xlabel("As-of date")
+            _date_axis(ax, first, last, WIDTH / cols - 0.5)
+            ax.tick_params(axis="x", labelbottom=True)
+        handles = [Line2D([], [], color=FORWARD, linewidth=0.9, label="forward \u2212 realised")]
+        if spans:
+            handles.append(Patch(facecolor=SHADE, alpha=0.22,
+                                 label=f"{curve.inversion_pair[0]}\u2013{curve.inversion_pair[1]} inverted"))
+        fig.legend(handles=handles, loc="upper right", ncols=2, bbox_to_anchor=(1.0, 1.0))
+        fig.suptitle(title, x=0.01, ha="left", color=INK)
+        svg = figure_svg(fig, prefix, title)
+    caption = (f"Each line is the error of the forward made on that as-of date, once its target date came; "
+               f"{_thinned_note(period)}. Above zero: the forward was higher than what happened. Shaded: the "
+               "curve's inversion episodes on the as-of date. Panels share the vertical scale.")
+    return Chart(svg, title, caption)
+
+
+def premium_regime_chart(curve: CurveReport, prefix: str) -> Chart | None:
+    """The mean error (the ex-post premium, bp) by start for normal and inverted curves on the as-of
+    date (and all days), with the HAC 95 % interval, one panel per tenor."""
+    s = curve.summary
+    if s is None or s.empty or "regime" not in s:
+        return None
+    s = s[(s["start_months"] > 0) & s["regime"].isin(list(REGIME_STYLE))]
+    if not (s["regime"] != "all").any():
+        return None
+    tenors = sorted(s["tenor_months"].unique())
+    starts = sorted(s["start_months"].unique())
+    pos = {st: i for i, st in enumerate(starts)}
+    regimes = [r for r in ("normal", "inverted", "all") if (s["regime"] == r).any()]
+    width = 0.6 / max(len(regimes), 1)
+    title = f"{curve.name}: term premium (mean error) by regime and horizon, with HAC 95 % interval"
+    with chart_style():
+        fig = new_figure(WIDTH, 3.1)
+        axes = np.atleast_1d(fig.subplots(1, len(tenors), sharey=True))
+        for i, (ax, t) in enumerate(zip(axes, tenors, strict=True)):
+            ax.axhline(0.0, color=MUTED, linewidth=0.7)
+            for j, regime in enumerate(regimes):
+                part = s[(s["tenor_months"] == t) & (s["regime"] == regime)].sort_values("start_months")
+                if part.empty:
+                    continue
+                colour, marker = REGIME_STYLE[regime]
+                x = np.array([pos[v] for v in part["start_months"]]) + (j - (len(regimes) - 1) / 2) * width
+                mean = part["mean_error_bp"].to_numpy(dtype=float)
+                se = part["hac_se_bp"].to_numpy(dtype=float) if "hac_se_bp" in part else np.full(mean.shape, np.nan)
+                ax.errorbar(x, mean, yerr=np.where(np.isfinite(se), 1.96 * se, 0.0), fmt=marker, color=colour,
+                            markersize=3.2, capsize=2, elinewidth=0.9,
+                            label={"all": "all days"}.get(regime, f"{regime} curve"))
+            ax.set_xticks(range(len(starts)), [months_label(v) for v in starts], fontsize=7)
+            ax.set_title(f"{months_label(t)} tenor", fontsize=8.5)
+            ax.set_xlabel("Forward start")
+            if i == 0:
+                ax.set_ylabel("Mean error (bp)")
+        handles, labels = axes[0].get_legend_handles_labels()
+        axes[-1].legend(handles, labels, loc="upper left", bbox_to_anchor=(1.0, 1.0), title="On the as-of date")
+        fig.suptitle(title, x=0.01, ha="left", color=INK)
+        svg = figure_svg(fig, prefix, title)
+    caption = ("Mean of forward minus realised rate over the outcomes of each regime (the curve inverted or "
+               "normal at the first inversion pair on the day the forward was made); bars: \u00b1 1.96 Newey-West "
+               "standard errors. Inverted periods are short: their intervals are wide and rest on few "
+               "independent outcomes.")
     return Chart(svg, title, caption)

@@ -11,8 +11,10 @@ from __future__ import annotations
 import hashlib
 from collections.abc import Callable, Iterable, Sequence
 
+import numpy as np
 import pandas as pd
 
+from pipeline.contenders.verdicts import contender_label
 from pipeline.report import charts
 from pipeline.report.fmt import (
     MISSING,
@@ -29,11 +31,13 @@ from pipeline.report.fmt import (
 )
 from pipeline.report.model import CurveReport, ReportData
 from pipeline.report.style import STYLESHEET
+from pipeline.report.summary import confidence_counts, horizon_verdicts
 
 __all__ = ["CHECK_ORDER", "SECTIONS", "input_fingerprint", "render_report"]
 
-#: (anchor, heading) of the eight sections, in order
+#: (anchor, heading) of the sections, in order
 SECTIONS = (
+    ("summary", "Summary"),
     ("scope", "Scope and provenance"),
     ("quality", "Data quality"),
     ("history", "Curve history"),
@@ -41,7 +45,9 @@ SECTIONS = (
     ("errors", "Forecast error by horizon"),
     ("premium", "Term premium over time"),
     ("contenders", "Forecast contenders"),
+    ("overrides", "Overrides and what-if builds"),
     ("cautions", "Cautions"),
+    ("signoff", "Review and sign-off"),
 )
 CHECK_ORDER = ("unparseable", "out_of_range", "duplicate", "missing_day", "missing_tenor", "stale_curve",
                "jump", "inversion", "negative_forward", "non_monotone_discount")
@@ -119,8 +125,9 @@ def _figure(chart: charts.Chart | None, fig_id: str, empty_text: str) -> str:
             f"<figcaption>{esc(chart.caption)}</figcaption></figure>")
 
 
-def _section(index: int, body: str) -> str:
-    anchor, heading = SECTIONS[index]
+def _section(anchor: str, body: str) -> str:
+    index = [a for a, _ in SECTIONS].index(anchor)
+    heading = SECTIONS[index][1]
     return (f'<section id="{anchor}"><h2><span class="secno">{index + 1}</span>{esc(heading)}</h2>'
             f"{body}</section>")
 
@@ -146,7 +153,132 @@ def input_fingerprint(sha256s: Iterable[str]) -> str:
     return hashlib.sha256(joined.encode("ascii")).hexdigest()
 
 
-# ---- section 1: scope and provenance -----------------------------------------------------------
+
+# ---- section 1: summary ---------------------------------------------------------------------------
+
+_AGAINST_WORD = {"better": "better", "worse": "worse", "even": "even", "untested": "untested"}
+_LIST_AT_MOST = 6
+
+
+def _horizon(start: int, tenor: int) -> str:
+    return f"{months_label(start)}\u00d7{months_label(tenor)}"
+
+
+def _listed(v: pd.DataFrame) -> str:
+    names = [_horizon(a, b) for a, b in zip(v["start_months"], v["tenor_months"], strict=True)]
+    if len(names) > _LIST_AT_MOST:
+        return ", ".join(names[:_LIST_AT_MOST]) + f" and {len(names) - _LIST_AT_MOST} more"
+    return ", ".join(names)
+
+
+def _count_of(k: int, total: int) -> str:
+    return f"{k:,} of {total:,} horizon" + ("s" if total != 1 else "")
+
+
+def _summary_grid(v: pd.DataFrame) -> str:
+    starts = sorted(v["start_months"].unique())
+    tenors = sorted(v["tenor_months"].unique())
+    cell = {(int(r["start_months"]), int(r["tenor_months"])): r for _, r in v.iterrows()}
+    head = "".join(f'<th class="n">{esc(months_label(t))}</th>' for t in tenors)
+    rows = []
+    for a in starts:
+        tds = []
+        for b in tenors:
+            r = cell.get((int(a), int(b)))
+            if r is None:
+                tds.append(f"<td>{MISSING}</td>")
+                continue
+            star = " *" if bool(r["indicative"]) else ""
+            prem = fmt_bp(r["mean_error_bp"], signed=True)
+            prem_html = f"<strong>{esc(prem)}</strong>" if r["premium"] != "unclear" else esc(prem)
+            tds.append(f'<td class="g-{esc(r["against"])}"><span class="word">{_AGAINST_WORD[r["against"]]}</span> '
+                       f'{esc(fmt_num(r["rmse_ratio"], 2))}{star}<br><span class="bp">{prem_html} bp</span></td>')
+        rows.append(f'<tr><th scope="row">{esc(months_label(a))} ahead</th>{"".join(tds)}</tr>')
+    return (f'<table class="grid"><caption>Forwards against no-change: verdict and RMSE ratio; below it the mean '
+            f'error (premium, bold where distinguishable from zero)</caption><thead><tr><th>Start \\ tenor</th>{head}'
+            f'</tr></thead><tbody>{"".join(rows)}</tbody></table>')
+
+
+def _summary_points(c: CurveReport, v: pd.DataFrame) -> list[str]:
+    total = len(v)
+    better, worse = v[v["against"] == "better"], v[v["against"] == "worse"]
+    even = v[v["against"] == "even"]
+    acc = (f"<strong>Against no-change.</strong> Forwards forecast better at {_count_of(len(better), total)}"
+           + (f" ({esc(_listed(better))})" if len(better) else "")
+           + f"; worse at {len(worse):,}" + (f" ({esc(_listed(worse))})" if len(worse) else "")
+           + f"; no clear difference at {len(even):,}"
+           + (f"; {int((v['against'] == 'untested').sum()):,} too short to test" if (v["against"] == "untested").any()
+              else "") + ".")
+    pos, neg = v[v["premium"] == "positive"], v[v["premium"] == "negative"]
+    above = int((v["mean_error_bp"] > 0).sum())
+    if not v["mean_error_bp"].notna().any():
+        return [acc, "<strong>Premium.</strong> No mean error yet.", *_summary_points_rest(c, v)]
+    lo, hi = v.loc[v["mean_error_bp"].idxmin()], v.loc[v["mean_error_bp"].idxmax()]
+    where = ("above the rates that followed at most horizons" if above * 2 > total else
+             "below the rates that followed at most horizons" if above * 2 < total else
+             "as often above as below the rates that followed")
+
+    def at(r: pd.Series) -> str:
+        where_at = _horizon(r["start_months"], r["tenor_months"])
+        return f"{esc(fmt_bp(r['mean_error_bp'], signed=True))} bp ({esc(where_at)})"
+
+    prem = (f"<strong>Premium.</strong> Forwards stood {where} ({above:,} of {total:,} with a positive mean "
+            f"error); the mean error runs from {at(lo)} to {at(hi)}. Distinguishable from zero: positive at "
+            f"{len(pos):,}, negative at {len(neg):,} horizons.")
+    return [acc, prem, *_summary_points_rest(c, v)]
+
+
+def _summary_points_rest(c: CurveReport, v: pd.DataFrame) -> list[str]:
+    total = len(v)
+    n_eff = v["n_effective"].to_numpy(dtype=float)
+    few = int(v["indicative"].sum())
+    finite = n_eff[np.isfinite(n_eff)]
+    span = (f"from about {fmt_num(finite.min(), 0)} to {fmt_num(finite.max(), 0)}" if finite.size else MISSING)
+    strength = ("weak" if few * 2 > total else "mixed" if few else "adequate for every horizon shown")
+    ev = (f"<strong>Strength of evidence: {strength}.</strong> Independent (non-overlapping) periods per horizon run "
+          f"{span}; {_count_of(few, total)} have fewer than 10 and are indicative only (marked *). "
+          '<span class="caveat">Consecutive forecasts share most of their future, so n counts far more forecasts '
+          "than independent outcomes; the p-values allow for the overlap (fixed-b), but long horizons rest on a "
+          "handful of periods.</span>")
+    counts, cells = confidence_counts(c.confidence_set)
+    if cells:
+        kept = "; ".join(f"{esc(contender_label(r['contender']))} at {int(r['kept']):,}"
+                         for _, r in counts.iterrows())
+        cs = (f"<strong>Confidence set.</strong> Of {cells:,} horizons compared (Model Confidence Set at 10 %), "
+              f"each contender is not beaten at: {kept}.")
+    else:
+        cs = "<strong>Confidence set.</strong> Not computed yet (run 'afterward compare')."
+    return [ev, cs]
+
+
+def _summary(data: ReportData) -> str:
+    parts = ['<p class="intro">The findings in brief, per curve: where the forwards forecast better than '
+             "assuming rates stay where they are, how far and in which direction they missed (the ex-post term "
+             "premium), and how much independent evidence stands behind each figure. The sections after this one "
+             "hold the detail.</p>"]
+    blocks = []
+    for c in data.curves:
+        v = horizon_verdicts(c.summary)
+        head = f'<h3 class="sumhead">{esc(c.name)}</h3>'
+        if v.empty:
+            blocks.append(f'<div class="sumcurve">{head}{_empty("No audit figures yet (run afterward audit).")}</div>')
+            continue
+        points = "".join(f"<li>{p}</li>" for p in _summary_points(c, v))
+        blocks.append(f'<div class="sumcurve">{head}{_summary_grid(v)}<ul class="points">{points}</ul></div>')
+    if not blocks:
+        parts.append(_empty("No curve in scope."))
+    parts.append(f'<div class="sumgrid">{"".join(blocks)}</div>')
+    parts.append('<p class="more">Horizons are written start \u00d7 tenor: 2Y\u00d71Y is the 1Y rate 2Y ahead. '
+                 "better / worse: the forwards' squared error is below / above the no-change forecast's at 5 % "
+                 "(Diebold-Mariano, fixed-b p-value); even: no significant difference. RMSE ratio: forward over "
+                 "no-change. Mean error: forward minus realised rate, in bp.</p>")
+    parts.append(_note("Statistical evidence for model validation, not investment advice. The figures depend on the "
+                       "input data and the conventions listed under Scope and provenance; decisions stay with "
+                       "qualified staff under the institution's own rules (see Cautions)."))
+    return _section("summary", "".join(parts))
+
+
+# ---- section 2: scope and provenance -----------------------------------------------------------
 
 def _scope(data: ReportData) -> str:
     parts = ['<p class="intro">What this report covers, the conventions its numbers follow, and the files, '
@@ -185,7 +317,7 @@ def _scope(data: ReportData) -> str:
         f"<dt>Window asked for</dt><dd>{esc(window_text)}</dd>"
         "</dl>"
     )
-    return _section(0, "".join(parts))
+    return _section("scope", "".join(parts))
 
 
 def _inputs(data: ReportData) -> str:
@@ -273,7 +405,7 @@ def _builds(data: ReportData) -> str:
     return "".join(out)
 
 
-# ---- section 2: data quality ----------------------------------------------------------------------
+# ---- section 3: data quality ----------------------------------------------------------------------
 
 def _quality(data: ReportData, first: object, last: object) -> str:
     f = data.findings
@@ -325,7 +457,7 @@ def _quality(data: ReportData, first: object, last: object) -> str:
                              for r in _rows(gaps, ROW_LIMIT)), total=len(gaps)))
     parts.append("<h3>Inversion episodes</h3>")
     parts.append(_episodes(data.curves))
-    return _section(1, "".join(parts))
+    return _section("quality", "".join(parts))
 
 
 def _clip(text: object, width: int) -> str:
@@ -358,9 +490,9 @@ def _episodes(curves: Sequence[CurveReport]) -> str:
     return "".join(out)
 
 
-# ---- sections 3 to 6: per curve ----------------------------------------------------------------
+# ---- sections 4 to 8: per curve ----------------------------------------------------------------
 
-def _per_curve(curves: Sequence[CurveReport], index: int, intro: str,
+def _per_curve(curves: Sequence[CurveReport], index: str, intro: str,
                body: Callable[[CurveReport, int], str]) -> str:
     parts = [f'<p class="intro">{esc(intro)}</p>']
     if not curves:
@@ -371,8 +503,10 @@ def _per_curve(curves: Sequence[CurveReport], index: int, intro: str,
 
 
 def _history_body(c: CurveReport, i: int) -> str:
-    return _figure(charts.history_chart(c, f"h{i}"), f"fig-history-{i}",
-                   "No curve has been built for this curve yet (run 'afterward build').")
+    return (_figure(charts.history_chart(c, f"h{i}"), f"fig-history-{i}",
+                    "No curve has been built for this curve yet (run 'afterward build').")
+            + _figure(charts.spreads_chart(c, f"s{i}"), f"fig-spreads-{i}",
+                      "No inversion pair is configured, or its tenors are not quoted."))
 
 
 def _summary_rows(c: CurveReport, regime: str = "all") -> pd.DataFrame:
@@ -415,6 +549,8 @@ def _errors_body(c: CurveReport, i: int) -> str:
     out.append(_figure(charts.error_chart(c, f"e{i}"), f"fig-errors-{i}",
                        "No audit figures yet (run 'afterward realize' and 'afterward audit')."))
     out.append(_figure(charts.rmse_chart(c, f"r{i}"), f"fig-rmse-{i}", "No audit figures yet."))
+    out.append(_figure(charts.error_time_chart(c, f"t{i}"), f"fig-error-time-{i}",
+                       "No forward of the charted tenor has reached its target date yet."))
     s = _summary_rows(c)
     if s.empty:
         return "".join(out)
@@ -478,7 +614,9 @@ def _errors_body(c: CurveReport, i: int) -> str:
 
 def _premium_body(c: CurveReport, i: int) -> str:
     out = [_figure(charts.premium_chart(c, f"p{i}"), f"fig-premium-{i}",
-                   "Not enough outcomes yet for a trailing-window premium.")]
+                   "Not enough outcomes yet for a trailing-window premium."),
+           _figure(charts.premium_regime_chart(c, f"g{i}"), f"fig-premium-regime-{i}",
+                   "No audit figures by regime yet.")]
     p = c.premium
     if p is not None and not p.empty:
         p = p[p["start_months"] > 0]
@@ -548,7 +686,7 @@ def _contenders_body(c: CurveReport, i: int) -> str:
     return "".join(out)
 
 
-# ---- section 7 and the page ---------------------------------------------------------------------
+# ---- overrides, cautions, sign-off and the page ---------------------------------------------------------------------
 
 CAUTIONS = (
     ("Statistical findings, not advice.",
@@ -560,7 +698,7 @@ CAUTIONS = (
      "lags for that overlap, but a sample of a few years holds only a few independent outcomes at long "
      "horizons; read long-horizon results with that in mind."),
     ("Dependence on input data and conventions.",
-     "Every figure depends on the files listed in section 1, on the quote type, compounding, day count, "
+     "Every figure depends on the files listed under Scope and provenance, on the quote type, compounding, day count, "
      "calendar and interpolation method configured for each curve, and on the checks that held days "
      "back. Different inputs or conventions give different numbers; the input fingerprint, program version "
      "and schema version identify the ones used here."),
@@ -573,9 +711,65 @@ CAUTIONS = (
 )
 
 
+def _overrides(data: ReportData) -> str:
+    parts = ['<p class="intro">Every decision a person made that changes what the figures rest on: the days whose '
+             "reject findings were accepted (so the day was built and scored) and the what-if builds made beside "
+             "the official curves. A reviewer checks that each has a named owner and a reason.</p>"]
+    parts.append("<h3>Accepted days</h3>")
+    a = data.acceptances
+    if a is None or a.empty:
+        parts.append(_empty("No day's findings have been accepted: every reject finding still holds its day back."))
+    else:
+        lapsed = int((~a["in_force"].astype(bool)).sum())
+        parts.append(_table(
+            ["Curve", _nh("Day"), "Findings on the day", "Accepted by", _nh("Accepted at"), "Reason", "Status"],
+            ([r["curve"], _n(fmt_date(r["as_of"])), r["findings"] if not is_missing(r["findings"]) else MISSING,
+              r["accepted_by"], _n(fmt_timestamp(r["accepted_at"], seconds=False)),
+              r["reason"] if not is_missing(r["reason"]) and str(r["reason"]) else "(no reason given)",
+              "in force" if bool(r["in_force"]) else "lapsed: the day's quotes changed since"]
+             for r in _rows(a)),
+            caption=f"{len(a):,} acceptance(s), {lapsed:,} lapsed. An acceptance lasts until the day's quotes "
+                    "change; findings are the day's unresolved ones."))
+    parts.append("<h3>What-if builds</h3>")
+    w = data.scenarios
+    if w is None or w.empty:
+        parts.append(_empty("No what-if build: only the official curves have been built."))
+    else:
+        parts.append(_table(
+            ["Curve", "Scenario", "Method", "Program version", _nh("Days built"), _nh("First"), _nh("Last"),
+             _nh("Last built at")],
+            ([r["curve"], r["scenario"], r["method"], r["code_version"], _n(fmt_count(r["days"])),
+              _n(fmt_date(r["first_day"])), _n(fmt_date(r["last_day"])),
+              _n(fmt_timestamp(r["built_at"], seconds=False))] for r in _rows(w)),
+            caption="Scenarios built with another interpolation method ('afterward build --method'); they stand "
+                    "beside the official surfaces and change no figure of this report unless compared as a "
+                    "contender."))
+    return _section("overrides", "".join(parts))
+
+
+def _signoff(data: ReportData) -> str:
+    roles = ("Prepared by", "Reviewed by", "Approved by")
+    rows = "".join(f'<tr><th scope="row">{esc(r)}</th><td></td><td></td><td></td></tr>' for r in roles)
+    return _section("signoff", (
+        '<p class="intro">To be completed on the printed or saved copy. Signing records that the reviewer read '
+        "this report with its cautions; it does not turn statistical evidence into a decision.</p>"
+        f'<table class="signoff"><caption>Report generated {esc(fmt_timestamp(data.generated_at))}; input '
+        f"fingerprint {esc(_fingerprint_short(data))} (its first 16 hex digits; the whole one is under Scope and "
+        "provenance)</caption><thead><tr><th>Role</th><th>Name</th>"
+        f"<th>Signature</th><th>Date</th></tr></thead><tbody>{rows}</tbody></table>"
+        '<div class="remarks"><p>Remarks and conditions</p></div>'))
+
+
+def _fingerprint_short(data: ReportData) -> str:
+    loads = data.loads
+    if loads is None or loads.empty:
+        return MISSING
+    return input_fingerprint(_resting(loads)["sha256"])[:16]
+
+
 def _cautions() -> str:
     items = "".join(f"<li><strong>{esc(a)}</strong> {esc(b)}</li>" for a, b in CAUTIONS)
-    return _section(len(SECTIONS) - 1, f'<ol class="cautions">{items}</ol>')
+    return _section("cautions", f'<ol class="cautions">{items}</ol>')
 
 
 def _facts(data: ReportData) -> str:
@@ -622,21 +816,25 @@ def render_report(data: ReportData) -> str:
         "realised rates</p>"
         f"<h1>{esc(data.title)}</h1><p class=\"lede\">{esc(lede)}</p>{_known_at_banner(data)}{_facts(data)}"
         f'<nav class="contents"><p>Contents</p><ol>{toc}</ol></nav></header>',
+        _summary(data),
         _scope(data),
         _quality(data, first, last),
-        _per_curve(data.curves, 2, "Each curve over time: the colour shows the rate at each tenor, the lines "
+        _per_curve(data.curves, "history", "Each curve over time: the colour shows the rate at each tenor, the lines "
                    "follow a few tenors, and shading marks the periods when the short end stood above the "
                    "long end.", _history_body),
-        _per_curve(data.curves, 3, "For a few horizons, each forward drawn on the date it was a forecast for, "
+        _per_curve(data.curves, "forwards", "For a few horizons, each forward drawn on the date it was a forecast for, "
                    "next to the rate actually observed on that date and to the no-change forecast (today's "
                    "rate, carried forward).", _forwards_body),
-        _per_curve(data.curves, 4, "How far the forwards missed, on average and in spread, at each horizon, "
+        _per_curve(data.curves, "errors", "How far the forwards missed, on average and in spread, at each horizon, "
                    "and whether they beat the no-change forecast.", _errors_body),
-        _per_curve(data.curves, 5, "The ex-post term premium: the average amount by which the forwards "
+        _per_curve(data.curves, "premium", "The ex-post term premium: the average amount by which the forwards "
                    "exceeded the rates that followed, over a trailing window of observation days.", _premium_body),
-        _per_curve(data.curves, 6, "The forwards scored against every other forecast on the same days: which are "
-                   "not beaten, at each horizon, and how much independent evidence there is.", _contenders_body),
+        _per_curve(data.curves, "contenders", "The forwards scored against every other forecast on the same days: "
+                   "which are not beaten, at each horizon, and how much independent evidence there is.",
+                   _contenders_body),
+        _overrides(data),
         _cautions(),
+        _signoff(data),
         f"<footer>afterward {esc(data.program_version)} \u00b7 schema {esc(data.schema_version)} \u00b7 generated "
         f"{esc(fmt_timestamp(data.generated_at))}. This file is self-contained: it loads nothing from "
         "anywhere.</footer>",

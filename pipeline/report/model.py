@@ -41,6 +41,10 @@ class CurveReport:
     ``compared``: (computed_at, first_as_of, last_as_of) of that comparison, or None.
     ``model_premium``: ``as_of, maturity_months, term_premium`` (decimal), the model's real-time term
     premium at month ends.
+    ``errors``: ``as_of, start_months, tenor_months, error_bp`` (forward minus realised, bp) of the
+    ``premium_tenor`` forwards at every start, one row per as-of date (the error over time).
+    ``spreads``: ``as_of, short_tenor, long_tenor, spread_bp`` (long minus short, bp, as the inversion
+    check compares them) of every configured inversion pair; ``all_pairs``: those pairs, in order.
     """
 
     name: str
@@ -66,6 +70,9 @@ class CurveReport:
     contender_verdicts: pd.DataFrame = field(default_factory=_empty)
     compared: tuple | None = None
     model_premium: pd.DataFrame = field(default_factory=_empty)
+    errors: pd.DataFrame = field(default_factory=_empty)
+    spreads: pd.DataFrame = field(default_factory=_empty)
+    all_pairs: tuple[tuple[str, str], ...] = ()
 
 
 @dataclass(frozen=True)
@@ -79,6 +86,10 @@ class ReportData:
     findings (days kept out of the build); ``rejected_rows``: ``load_id, file_name, line, raw, reason``.
     ``window``: the ``(from, to)`` ISO dates asked for, ``None`` for open ends.
     ``as_known_at``: for a report of the archive as it stood at a past time (naive UTC), that time.
+    ``acceptances``: every override of a day's reject findings (``curve, as_of, accepted_by,
+    accepted_at, reason, in_force, findings``: in force while the day's quotes are unchanged since).
+    ``scenarios``: every what-if build (``curve, scenario, method, code_version, days, first_day,
+    last_day, built_at``).
     """
 
     generated_at: datetime
@@ -94,6 +105,8 @@ class ReportData:
     findings: pd.DataFrame = field(default_factory=_empty)
     held: pd.DataFrame = field(default_factory=_empty)
     rejected_rows: pd.DataFrame = field(default_factory=_empty)
+    acceptances: pd.DataFrame = field(default_factory=_empty)
+    scenarios: pd.DataFrame = field(default_factory=_empty)
     title: str = "Forward audit report"
 
 

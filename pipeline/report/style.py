@@ -94,13 +94,62 @@ ol.cautions { padding-left: 22px; }
 ol.cautions li { margin: 0 0 10px; max-width: 82ch; }
 ol.cautions strong { color: var(--accent); }
 footer { margin-top: 48px; padding-top: 12px; border-top: 1px solid var(--rule); color: var(--muted); font-size: 12px; }
+.sumgrid { display: grid; grid-template-columns: repeat(auto-fit, minmax(440px, 1fr)); gap: 8px 36px; }
+h3.sumhead { margin: 14px 0 4px; color: var(--ink); letter-spacing: .02em; text-transform: none;
+             font: 400 19px var(--serif); }
+table.grid { font-size: 12.5px; margin-top: 2px; }
+table.grid caption { font-size: 12px; }
+table.grid th, table.grid td { padding: 3px 6px; }
+table.grid th[scope=row] { text-transform: none; letter-spacing: 0; font-size: 12px; color: var(--ink);
+                           border-bottom: 1px solid var(--rule); white-space: nowrap; }
+table.grid td { text-align: right; white-space: nowrap; line-height: 1.3; }
+table.grid .word { font-size: 11px; font-weight: 650; text-transform: uppercase; letter-spacing: .04em; }
+table.grid .bp { color: var(--muted); font-size: 11.5px; }
+table.grid td.g-better { background: #dff1ea; }
+table.grid td.g-better .word { color: #00684c; }
+table.grid td.g-worse { background: #fbe6d8; }
+table.grid td.g-worse .word { color: var(--vermillion); }
+table.grid td.g-even .word, table.grid td.g-untested .word { color: var(--muted); }
+ul.points { margin: 8px 0 4px; padding-left: 18px; font-size: 13.5px; }
+ul.points li { margin: 0 0 6px; }
+ul.points .caveat { display: block; margin-top: 3px; padding-left: 8px; border-left: 3px solid var(--amber);
+                    color: var(--muted); font-size: 12.5px; }
+table.signoff { margin-top: 10px; }
+table.signoff td, table.signoff th[scope=row] { height: 52px; border-bottom: 1px solid var(--ink); }
+table.signoff th[scope=row] { width: 18%; text-transform: none; letter-spacing: 0; font-size: 13px; color: var(--ink);
+                              vertical-align: bottom; }
+table.signoff td:nth-child(2), table.signoff td:nth-child(3) { width: 30%; }
+.remarks { margin-top: 16px; height: 140px; border: 1px solid var(--ink); padding: 6px 10px; }
+.remarks p { margin: 0; font-size: 11px; letter-spacing: .09em; text-transform: uppercase; color: var(--muted); }
 @media (max-width: 760px) { .sheet { padding: 0 18px 30px; border-left-width: 3px; } nav.contents ol { columns: 1; } }
+@page { size: A4; margin: 14mm 12mm 16mm; }
 @media print {
   html { background: #fff; }
+  html, body { -webkit-print-color-adjust: exact; print-color-adjust: exact; }
+  body { font-size: 10pt; }
   .sheet { max-width: none; padding: 0; border: 0; box-shadow: none; }
   nav.contents { display: none; }
   section { break-before: page; margin-top: 0; }
-  figure.chart, tr { break-inside: avoid; }
+  h2 { border-top: 0; padding-top: 0; font-size: 20pt; }
+  h2, h3, h4, caption, .intro { break-after: avoid; }
+  figure.chart, figcaption, tr, .sumcurve, table.signoff, .remarks, .note { break-inside: avoid; }
+  figure.chart { margin: 8px 0 14px; }
+  tr.has-verdict { break-after: avoid; }
+  .table-wrap { overflow: visible; }
+  table { font-size: 8.5pt; }
+  table.results { font-size: 7pt; }
+  table.results th, table.results td { padding: 2px 3px; }
+  th { font-size: 7pt; }
+  tbody tr:hover td { background: none; }
+  /* a closed <details> prints open: its content is part of the record */
+  details::details-content { content-visibility: visible; display: block; }
   details > * { display: block; }
+  details > summary { list-style: none; color: var(--ink); font-weight: 650; }
+  details > summary::-webkit-details-marker { display: none; }
+  .mono, code { font-size: 7.5pt; }
+  td .mono { font-size: 6pt; }
+  td { white-space: nowrap; }
+  td:last-child:not(.n), table.results td:not(.n), table.settings td, table.signoff td { white-space: normal; }
+  .sumgrid { grid-template-columns: 1fr; }
 }
 """

@@ -179,3 +179,18 @@ def test_changes_since_t1_lists_the_restated_day_its_rebuild_and_the_cells_that_
     assert table.returncode == 0 and "changes since" in table.stdout
     bad = run_cli("changes", "--since", "yesterday", "--config", str(p.root / "afterward.toml"), cwd=p.root)
     assert bad.returncode == 2 and "not an ISO 8601 time" in bad.stderr and "Traceback" not in bad.stderr
+
+
+def test_a_report_as_known_at_says_so_at_the_top(history, tmp_path) -> None:  # noqa: ANN001
+    p, t1, _ = history
+    done = run_cli("report", "--as-known-at", t1, "--out", str(tmp_path), "--config", str(p.root / "afterward.toml"),
+                   cwd=p.root, timeout=600)
+    assert done.returncode == 0, done.stderr
+    from pathlib import Path
+
+    path = Path(done.stdout.strip().splitlines()[-1])
+    assert path.parent == tmp_path  # the report goes where --out says, never into the scratch folder
+    page = path.read_text(encoding="utf-8")
+    head = page[:page.index('<section')]
+    assert "Data as known at" in head and "It is not the current record." in head
+    assert "recomputed on a scratch copy" in done.stderr

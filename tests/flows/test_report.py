@@ -30,6 +30,8 @@ import select
 import shutil
 import subprocess
 import time
+import unicodedata
+from html.parser import HTMLParser
 from pathlib import Path
 
 import duckdb
@@ -39,7 +41,7 @@ from PIL import Image
 
 from flows.audit_step import run_audit
 from flows.build_step import run_build
-from flows.check_step import run_checks
+from flows.check_step import accept_day, run_checks
 from flows.load_step import load_files
 from flows.realize_step import run_realize
 from flows.report_step import write_report
@@ -71,7 +73,13 @@ def demo_store(tmp_path_factory: pytest.TempPathFactory) -> Path:
             paths.append(cfg.inbox / name)
     load_files(cfg, sorted(paths))
     run_checks(cfg)
+    # one override and one what-if build, so the overrides section has something of each to list
+    with duckdb.connect(str(cfg.store_path), read_only=True) as con:
+        curve, day = con.execute("SELECT curve, CAST(min(as_of) AS VARCHAR) FROM open_findings WHERE severity = "
+                                 "'reject' GROUP BY curve ORDER BY curve LIMIT 1").fetchone()
+    assert accept_day(cfg, curve, day, "level confirmed against the source file") > 0
     run_build(cfg)
+    run_build(cfg, "swap", "2002-01-01", "2002-02-28", method="nss")
     run_realize(cfg)
     run_audit(cfg)
     return root / "afterward.toml"
@@ -159,6 +167,23 @@ def test_report_numbers_match_a_plain_recomputation(demo_store: Path, report: Pa
     # the bias p is the fixed-b p of the stored HAC t (pipeline.audit.fixed_b, its own tests hold it)
     p = pvalue_two_sided(hac_t, n, h)
     assert cells[7] == ("&lt; 0.001" if p < 0.001 else f"{p:.3f}")
+
+
+def test_report_lists_the_store_s_acceptances_and_what_if_builds(demo_store: Path, report: Path) -> None:
+    text = report.read_text(encoding="utf-8")
+    part = text[text.index('<section id="overrides">'):text.index('<section id="cautions">')]
+    with _store(demo_store) as con:
+        acc = con.execute("SELECT curve, as_of, accepted_by, reason FROM acceptance_in_force").fetchall()
+        whatif = con.execute("SELECT scenario, count(DISTINCT as_of), min(as_of), max(as_of) FROM forward_built "
+                             "WHERE scenario <> 'official' GROUP BY scenario").fetchall()
+    assert len(acc) == 1 and len(whatif) == 1
+    curve, day, who, reason = acc[0]
+    assert re.search(rf"<td>{curve}</td><td class=\"n\">{day:%Y-%m-%d}</td><td>[^<]*reject[^<]*</td><td>{who}</td>",
+                     part)
+    assert f"<td>{reason}</td><td>in force</td>" in part
+    scenario, days, lo, hi = whatif[0]
+    assert (f'<td>{scenario}</td><td>nss</td>' in part and f'<td class="n">{days:,}</td><td class="n">{lo:%Y-%m-%d}'
+            f'</td><td class="n">{hi:%Y-%m-%d}</td>' in part)
 
 
 def test_cli_writes_the_report_beside_the_config(demo_store: Path) -> None:
@@ -302,6 +327,7 @@ PAGE_FACTS = """JSON.stringify((() => {
                       return {x: b.left + scrollX, y: b.top + scrollY, w: b.width, h: b.height}; };
   return {
     headings: [...document.querySelectorAll('h2')].map(h => h.textContent.trim()),
+    subheadings: [...document.querySelectorAll('h3, h4')].map(h => h.textContent.trim()),
     charts: [...document.querySelectorAll('figure.chart')].map(f => ({id: f.id, box: box(f.querySelector('svg'))})),
     svgs: document.querySelectorAll('svg').length,
     width: document.documentElement.scrollWidth,
@@ -375,10 +401,17 @@ def test_report_renders_in_headless_chromium(report: Path, tmp_path: Path) -> No
     assert found == expected
     assert facts["width"] <= WIDTH, "the page is wider than the window"
 
-    # every chart: findings, then per curve history, forwards, error, RMSE and premium
+    # the summary per curve, the overrides' two lists and the sign-off are there
+    for sub in ("govt", "swap", "Accepted days", "What-if builds"):
+        assert sub in facts["subheadings"], sub
+
+    # every chart: findings, then per curve history and the pairs' spreads, forwards, error (by horizon,
+    # RMSE, over time) and premium (over time, by regime)
     ids = [c["id"] for c in facts["charts"]]
-    assert ids == ["fig-findings", "fig-history-0", "fig-history-1", "fig-forwards-0", "fig-forwards-1",
-                   "fig-errors-0", "fig-rmse-0", "fig-errors-1", "fig-rmse-1", "fig-premium-0", "fig-premium-1"]
+    assert ids == ["fig-findings", "fig-history-0", "fig-spreads-0", "fig-history-1", "fig-spreads-1",
+                   "fig-forwards-0", "fig-forwards-1", "fig-errors-0", "fig-rmse-0", "fig-error-time-0",
+                   "fig-errors-1", "fig-rmse-1", "fig-error-time-1", "fig-premium-0", "fig-premium-regime-0",
+                   "fig-premium-1", "fig-premium-regime-1"]
     assert facts["svgs"] == len(ids)
     for chart in facts["charts"]:
         box = chart["box"]
@@ -407,3 +440,104 @@ def test_report_renders_in_headless_chromium(report: Path, tmp_path: Path) -> No
                and any(not loopback.match(a) for a in [p.get("address", "")] + p.get("address_list", []) if a)]
     assert reached == [], reached
 
+
+
+# ---- the page printed -------------------------------------------------------------------------------
+
+class _Printed(HTMLParser):
+    """What a printed copy must hold: every heading, details summary and table caption, each table's first
+    header cell, and the first cell of the last row of each table inside a collapsed <details>."""
+
+    WATCH = ("h2", "h3", "h4", "caption", "summary")
+
+    def __init__(self) -> None:
+        super().__init__(convert_charrefs=True)
+        self.texts: list[str] = []
+        self._open: list[list] = []  # [tag, text parts]
+        self._details = 0
+        self._first_th: bool = False
+        self._row: list[str] = []
+        self._cell: list[str] | None = None
+        self.hidden_last_rows: list[str] = []
+        self._secno = False
+
+    def handle_starttag(self, tag: str, attrs: list) -> None:
+        if tag in self.WATCH:
+            self._open.append([tag, []])
+        if tag == "span" and ("class", "secno") in attrs:
+            self._secno = True
+        if tag == "details":
+            self._details += 1
+        if tag == "table":
+            self._first_th = True
+            self._last_row: list[str] = []
+        if tag == "th" and self._first_th:
+            self._open.append(["th", []])
+        if tag == "tr":
+            self._row = []
+        if tag == "td":
+            self._cell = []
+
+    def handle_endtag(self, tag: str) -> None:
+        if tag == "span" and self._secno:
+            self._secno = False
+        if self._open and self._open[-1][0] == tag:
+            _, parts = self._open.pop()
+            text = "".join(parts).strip()
+            if text:
+                self.texts.append(text)
+            if tag == "th":
+                self._first_th = False
+        if tag == "td" and self._cell is not None:
+            self._row.append("".join(self._cell).strip())
+            self._cell = None
+        if tag == "tr" and self._row:
+            self._last_row = self._row
+        if tag == "table" and self._details and self._last_row:
+            self.hidden_last_rows.append(self._last_row[0])
+        if tag == "details":
+            self._details -= 1
+
+    def handle_data(self, data: str) -> None:
+        if self._secno:
+            return
+        for _, parts in self._open:
+            parts.append(data)
+        if self._cell is not None:
+            self._cell.append(data)
+
+
+def _squeeze(text: str) -> str:
+    """Case, spacing and line breaks dropped (print wraps lines, letter-spacing splits words, CSS
+    upper-cases headings), ligatures split (NFKC): what is left is the words' letters in order."""
+    return re.sub(r"\s+", "", unicodedata.normalize("NFKC", text)).lower()
+
+
+def test_report_prints_every_section_and_table(report: Path, tmp_path: Path) -> None:
+    if not os.access(CHROMIUM, os.X_OK) or shutil.which("pdftotext") is None:
+        pytest.fail("the print test needs Debian's chromium and poppler-utils (pdftotext): run "
+                    ".ci/install-chromium.sh")
+    pdf = tmp_path / "report.pdf"
+    done = subprocess.run([*_network_namespace(), CHROMIUM, "--headless", "--no-sandbox", "--disable-gpu",
+                           "--no-first-run", "--disable-background-networking", "--disable-component-update",
+                           f"--user-data-dir={tmp_path / 'profile'}", "--no-pdf-header-footer",
+                           f"--print-to-pdf={pdf}", report.as_uri()], capture_output=True, text=True, timeout=300)
+    assert pdf.is_file() and pdf.stat().st_size > 0, done.stderr[-2000:]
+    printed = _squeeze(subprocess.run(["pdftotext", "-raw", str(pdf), "-"], capture_output=True, text=True,
+                                      check=True).stdout)
+    page = _Printed()
+    page.feed(report.read_text(encoding="utf-8"))
+    for _, heading in SECTIONS:
+        assert _squeeze(heading) in printed, heading
+    assert len(page.texts) > 40
+    missing = [t for t in page.texts if _squeeze(t) not in printed]
+    assert missing == []
+    # the tables of collapsed <details> print in full: the last row of each is on paper
+    assert page.hidden_last_rows
+    assert [c for c in page.hidden_last_rows if _squeeze(c) not in printed] == []
+    # each section starts a page: its heading opens a page of the PDF
+    pages = subprocess.run(["pdftotext", "-raw", str(pdf), "-"], capture_output=True, text=True,
+                           check=True).stdout.split("\f")
+    openers = [_squeeze(p)[:120] for p in pages]
+    for _, heading in SECTIONS:
+        assert any(_squeeze(heading) in o for o in openers), heading

@@ -580,3 +580,26 @@ def test_pairs_inverted_on_their_first_judged_day():
     assert checks.pairs_inverted_first(days, LABELS, rates, cfg) == [("3M", "10Y")]
     # the same days seen from the last day only: both pairs inverted there
     assert checks.pairs_inverted_first(days[2:], LABELS, rates[2:], cfg) == [("3M", "10Y"), ("2Y", "10Y")]
+
+
+def test_pair_spreads_are_long_minus_short_in_bp_and_agree_with_the_episodes():
+    # the spreads the report charts are the ones the episodes are cut from: the most negative spread of
+    # each episode is its deepest_bp; a day with either tenor missing has no spread for that pair
+    days = days_of("2031-05-05", "2031-05-06", "2031-05-08", "2031-05-09", "2031-05-12", "2031-05-13")
+    r = np.full((6, 12), 0.04)
+    j3m, j10 = LABELS.index("3M"), LABELS.index("10Y")
+    r[:, j3m] = [0.0450, 0.0460, 0.0455, 0.0440, 0.0380, 0.0470]
+    r[:, j10] = [0.0420, 0.0400, 0.0410, 0.0410, 0.0400, 0.0420]
+    r[2, j10] = np.nan
+    cfg = make_cfg()  # 2Y/10Y and 3M/10Y
+    sp = checks.pair_spreads(days, LABELS, r, cfg)
+    three = sp[sp["short_tenor"] == "3M"]
+    # 10Y - 3M by hand: -30, -60, (8 May missing), -30, +20, -50 bp
+    assert three["spread_bp"].tolist() == pytest.approx([-30.0, -60.0, -30.0, 20.0, -50.0])
+    assert three["as_of"].astype(str).str[:10].tolist() == ["2031-05-05", "2031-05-06", "2031-05-09",
+                                                            "2031-05-12", "2031-05-13"]
+    two = sp[sp["short_tenor"] == "2Y"]
+    # 10Y - 2Y (the 2Y at 4 %) by hand: +20, 0, (8 May missing), +10, 0, +20 bp
+    assert two["spread_bp"].tolist() == pytest.approx([20.0, 0.0, 10.0, 0.0, 20.0])
+    ep = checks.inversion_episodes(days, LABELS, r, cfg)
+    assert ep.loc[ep["short_tenor"] == "3M", "deepest_bp"].tolist() == pytest.approx([-60.0, -50.0])

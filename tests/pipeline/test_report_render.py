@@ -258,7 +258,10 @@ def _curve(name: str = "alpha", days: int = 520) -> CurveReport:
         history=history, history_label="zero rate (annual, ACT/360)", inversion_pair=("3M", "10Y"),
         episodes=episodes, pairs=pairs, outcomes=outcomes, summary=summary, premium=premium, premium_tenor=12,
         premium_window_days=250, first_day=d[0], last_day=d[-1], days_observed=d.size, pending=17,
-        notes=("A note & a caveat.",),
+        notes=("A note & a caveat.",), errors=outcomes[["as_of", "start_months", "tenor_months", "error_bp"]],
+        spreads=pd.DataFrame({"as_of": d, "short_tenor": "3M", "long_tenor": "10Y",
+                              "spread_bp": (rates["10Y"] - rates["3M"]) * 1e4}),
+        all_pairs=(("3M", "10Y"),),
     )
 
 
@@ -293,8 +296,8 @@ def test_page_has_every_section_in_order_and_balanced_markup(page: str) -> None:
     parsed = _parse(page)
     assert parsed.errors == [] and parsed.stack == []
     assert [re.sub(r"^\d+", "", h).strip() for h in parsed.h2] == [h for _, h in SECTIONS]
-    assert parsed.figures == ["fig-findings", "fig-history-0", "fig-forwards-0", "fig-errors-0", "fig-rmse-0",
-                              "fig-premium-0"]
+    assert parsed.figures == ["fig-findings", "fig-history-0", "fig-spreads-0", "fig-forwards-0", "fig-errors-0",
+                              "fig-rmse-0", "fig-error-time-0", "fig-premium-0", "fig-premium-regime-0"]
 
 
 def test_page_loads_nothing_and_runs_nothing(page: str) -> None:
@@ -352,12 +355,12 @@ def test_long_history_is_thinned_to_weeks() -> None:
     chart = charts.history_chart(CurveReport(name="long", tenors=tenors, history=history), "t")
     assert chart is not None and "one point per week" in chart.caption
     assert len(chart.svg.encode()) < 600_000
-    # the heatmap is one embedded PNG, a pixel per tenor and week (weeks as pandas counts them, W-SUN)
+    # the heatmap is one embedded PNG strip per tenor, a pixel per week (weeks as pandas counts them, W-SUN)
     pngs = re.findall(r'data:image/png;base64,([A-Za-z0-9+/=\s]+)"', chart.svg)
-    assert len(pngs) == 2  # the heatmap and its colour bar
-    sizes = {Image.open(io.BytesIO(base64.b64decode(re.sub(r"\s", "", b)))).size for b in pngs}
+    assert len(pngs) == len(tenors) + 1  # the strips and the colour bar
+    sizes = [Image.open(io.BytesIO(base64.b64decode(re.sub(r"\s", "", b)))).size for b in pngs]
     weeks = pd.DatetimeIndex(days).to_period("W-SUN").nunique()
-    assert (weeks, len(tenors)) in sizes
+    assert sizes.count((weeks, 1)) == len(tenors)
 
 
 def test_the_contenders_section_draws_the_comparison_and_the_model_premium() -> None:
@@ -392,3 +395,145 @@ def test_the_contenders_section_draws_the_comparison_and_the_model_premium() -> 
     assert result.scores["indicative"].any() and " *" in section
     empty = render_report(_data((_curve(),)))
     assert "No comparison stored yet" in empty
+
+
+def _judged_summary() -> pd.DataFrame:
+    """Four horizons with the fixed-b figures set by hand, one per judgement."""
+    return pd.DataFrame({
+        "curve": "alpha", "start_months": [0, 6, 12, 24, 60], "tenor_months": 12, "regime": "all",
+        "n": [500, 400, 380, 300, 100], "mean_error_bp": [0.0, 12.0, -30.0, 4.0, 80.0],
+        "hac_se_bp": [np.nan, 2.0, 5.0, 9.0, 30.0], "lags": [0, 125, 251, 503, 1259],
+        "rmse_bp": [0.0, 40.0, 60.0, 70.0, 120.0], "rw_rmse_bp": [0.0, 45.0, 50.0, 71.0, 110.0],
+        "rmse_ratio": [np.nan, 0.89, 1.2, 0.99, 1.09], "dm_stat": [np.nan, -2.5, 2.6, -0.4, np.nan],
+        "dm_pvalue": [np.nan, 0.01, 0.01, 0.7, np.nan], "dm_pvalue_fixed_b": [np.nan, 0.03, 0.04, 0.8, np.nan],
+        "hac_pvalue": [np.nan, 0.001, 0.02, 0.7, 0.2], "n_effective": [500.0, 3.2, 1.5, 0.6, 0.08],
+        "indicative": [False, True, True, True, True], "mz_beta": np.nan, "mz_pvalue": np.nan, "fb_beta": np.nan,
+        "hit_rate": np.nan, "verdict": "v", "first_as_of": pd.Timestamp("2030-01-01"),
+        "last_as_of": pd.Timestamp("2031-01-01")})
+
+
+def test_summary_judges_each_horizon_by_its_fixed_b_p_values() -> None:
+    from pipeline.report.summary import confidence_counts, horizon_verdicts
+
+    v = horizon_verdicts(_judged_summary())
+    assert v["start_months"].tolist() == [6, 12, 24, 60]  # 0M (the spot rate itself) left out
+    # DM < 0 with p < 5 %: better; DM > 0, p < 5 %: worse; p >= 5 %: even; no p: untested
+    assert v["against"].tolist() == ["better", "worse", "even", "untested"]
+    # the premium's sign counts only where the mean error's fixed-b p is below 5 %
+    assert v["premium"].tolist() == ["positive", "negative", "unclear", "unclear"]
+    mcs = pd.DataFrame({"start_months": [0, 6, 6, 12, 12], "tenor_months": 12,
+                        "contender": ["forward", "forward", "no_change", "forward", "no_change"],
+                        "mcs_p_value": [1.0, 1.0, 0.02, 0.3, 1.0], "included": [True, True, False, True, True]})
+    counts, cells = confidence_counts(mcs)
+    assert cells == 2 and counts.set_index("contender")["kept"].to_dict() == {"forward": 2, "no_change": 1}
+
+
+def test_summary_comes_first_with_its_words_and_the_overlap_caution() -> None:
+    from dataclasses import replace
+
+    c = replace(_curve(), summary=_judged_summary())
+    page = render_report(_data((c,)))
+    parsed = _parse(page)
+    assert parsed.errors == [] and parsed.stack == []
+    part = page[page.index('<section id="summary">'):page.index('<section id="scope">')]
+    assert page.index('<section id="summary">') < page.index('<section id="scope">')
+    assert "better at 1 of 4 horizons (6M\u00d71Y)" in part and "worse at 1 (1Y\u00d71Y)" in part
+    assert "no clear difference at 1" in part and "1 too short to test" in part
+    assert "positive at 1, negative at 1 horizons" in part
+    assert "from -30.0 bp (1Y\u00d71Y) to +80.0 bp (5Y\u00d71Y)" in part
+    assert "Strength of evidence: weak." in part and "4 of 4 horizons have fewer than 10" in part
+    assert "share most of their future" in part and "not investment advice" in part
+    assert "Not computed yet (run 'afterward compare')" in part
+
+
+def test_tenor_strips_sit_at_their_maturity() -> None:
+    from pipeline.report.charts import _maturity_rows
+
+    # 1Y, 2Y, 4Y, 8Y: equal steps of log10(2) on the axis; edges halfway, half a step beyond the ends
+    # (by hand); approx_days / 365.25 is the year count the tenor parser gives
+    centre, edges = _maturity_rows(["1Y", "2Y", "4Y", "8Y"])
+    step = np.log10(2.0)
+    assert np.allclose(np.diff(centre), step, atol=2e-3)
+    assert np.allclose(edges[1:-1], (centre[1:] + centre[:-1]) / 2)
+    assert np.isclose(centre[0] - edges[0], np.diff(centre)[0] / 2) and np.isclose(edges[-1] - centre[-1],
+                                                                                   np.diff(centre)[-1] / 2)
+    # 10Y to 30Y is drawn farther apart than 5Y to 7Y, unlike rows of equal height
+    c2, _ = _maturity_rows(["5Y", "7Y", "10Y", "30Y"])
+    assert c2[3] - c2[2] > 2 * (c2[1] - c2[0])
+
+
+def _png_colours(svg: str) -> set[tuple[int, int, int]]:
+    out: set[tuple[int, int, int]] = set()
+    for b in re.findall(r'data:image/png;base64,([A-Za-z0-9+/=\s]+)"', svg):
+        img = Image.open(io.BytesIO(base64.b64decode(re.sub(r"\s", "", b)))).convert("RGB")
+        out |= {tuple(int(v) for v in px) for px in np.asarray(img).reshape(-1, 3)}
+    return out
+
+
+def test_findings_are_coloured_by_severity_and_counted_in_words() -> None:
+    from pipeline.report.svg import OKABE_ITO
+
+    f = pd.DataFrame({"curve": "alpha", "as_of": pd.to_datetime(["2030-03-04"] + ["2030-05-06"] * 45),
+                      "check_name": ["jump"] + ["inversion"] * 45, "severity": ["reject"] + ["info"] * 45})
+    chart = charts.findings_chart(f, ("jump", "inversion"), pd.Timestamp("2030-01-01"), pd.Timestamp("2030-12-31"),
+                                  "fq")
+
+    def rgb(h: str) -> tuple[int, int, int]:
+        return tuple(int(h[i:i + 2], 16) for i in (1, 3, 5))
+    # one reject and 45 infos: the reject's cell is the full reject colour, the infos' the info colour
+    assert _png_colours(chart.svg) == {(255, 255, 255), rgb(OKABE_ITO["vermillion"]), rgb(OKABE_ITO["blue"])}
+    assert "whatever the count" in chart.caption
+
+
+@pytest.mark.parametrize(("first", "last", "width"), [("2022-01-03", "2023-09-29", 9.6 / 3 - 0.5),
+                                                       ("2022-01-03", "2022-03-15", 9.6 / 3 - 0.5),
+                                                       ("1996-01-02", "2025-12-31", 9.6 / 3 - 0.5),
+                                                       ("2019-01-02", "2025-12-31", 8.6)],
+                         ids=["21-months-panel", "10-weeks-panel", "30-years-panel", "7-years-wide"])
+def test_date_labels_never_overlap(first: str, last: str, width: float) -> None:
+    from pipeline.report.charts import _date_axis
+
+    with chart_style():
+        fig = new_figure(width + 0.6, 1.6)
+        ax = fig.add_subplot()
+        a, b = np.datetime64(first), np.datetime64(last)
+        ax.plot([a, b], [0, 1])
+        _date_axis(ax, a, b, width)
+        from matplotlib.backends.backend_agg import FigureCanvasAgg
+
+        canvas = FigureCanvasAgg(fig)  # measures the text as the SVG's glyph outlines are drawn (same font)
+        canvas.draw()
+        renderer = canvas.get_renderer()
+        boxes = sorted((t.get_window_extent(renderer) for t in ax.get_xticklabels() if t.get_text()
+                        and ax.get_xlim()[0] <= t.get_position()[0] <= ax.get_xlim()[1]), key=lambda e: e.x0)
+    assert len(boxes) >= 2
+    assert all(lt.x1 < rt.x0 for lt, rt in zip(boxes, boxes[1:], strict=False)), [(e.x0, e.x1) for e in boxes]
+
+
+def test_overrides_list_every_acceptance_and_what_if_build_and_a_sign_off_block() -> None:
+    from dataclasses import replace
+
+    acc = pd.DataFrame({"curve": ["alpha", "alpha"], "as_of": pd.to_datetime(["2030-03-04", "2030-06-07"]),
+                        "accepted_by": ["r.ames", "k.lund"],
+                        "accepted_at": pd.to_datetime(["2031-01-10 08:15", "2031-02-11 16:40"]),
+                        "reason": ["source confirmed <by phone>", None], "in_force": [True, False],
+                        "findings": ["jump (reject, 3M)", None]})
+    whatif = pd.DataFrame({"curve": ["alpha"], "scenario": ["what-if:nss"], "method": ["nss"],
+                           "code_version": ["afterward 9.9"], "days": [63], "first_day": [date(2030, 1, 2)],
+                           "last_day": [date(2030, 3, 29)], "built_at": [pd.Timestamp("2031-03-01 12:00")]})
+    page = render_report(replace(_data((_curve(),)), acceptances=acc, scenarios=whatif))
+    parsed = _parse(page)
+    assert parsed.errors == [] and parsed.stack == []
+    part = page[page.index('<section id="overrides">'):page.index('<section id="cautions">')]
+    assert re.search(r'<td>alpha</td><td class="n">2030-03-04</td><td>jump \(reject, 3M\)</td><td>r.ames</td>'
+                     r'<td class="n">2031-01-10 08:15</td><td>source confirmed &lt;by phone&gt;</td><td>in force</td>',
+                     part)
+    assert "(no reason given)" in part and "lapsed: the day&#x27;s quotes changed since" in part
+    assert "2 acceptance(s), 1 lapsed" in part
+    assert "<td>what-if:nss</td><td>nss</td><td>afterward 9.9</td><td class=\"n\">63</td>" in part
+    sign = page[page.index('<section id="signoff">'):]
+    for role in ("Prepared by", "Reviewed by"):
+        assert f'<th scope="row">{role}</th><td></td><td></td><td></td>' in sign
+    assert "<th>Date</th>" in sign
+    bare = render_report(_data((_curve(),)))
+    assert "No day&#x27;s findings have been accepted" in bare and "No what-if build" in bare

@@ -1,4 +1,5 @@
-"""The wheel carries the schema files: an installed afterward finds sql/ inside its own package."""
+"""The wheel carries the schema files (an installed afterward finds sql/ inside its own package) and
+the notebook package ``afterward``, which imports from the unpacked wheel alone."""
 
 from __future__ import annotations
 
@@ -23,6 +24,8 @@ def test_wheel_ships_the_schema_files(tmp_path: Path):
         zf.extractall(tmp_path / "site")
     expected = {f"warehouse/sql/{p.name}" for p in (REPO / "sql").glob("*.sql")}
     assert expected and expected <= names
+    notebook = {f"afterward/{p.name}" for p in (REPO / "afterward").glob("*.py")}
+    assert {"afterward/__init__.py", "afterward/handle.py"} <= notebook <= names
     # run from the unpacked wheel alone (not the source tree): the schema is found and applies
     probe = subprocess.run(
         [sys.executable, "-c",
@@ -34,3 +37,11 @@ def test_wheel_ships_the_schema_files(tmp_path: Path):
     where, version = probe.stdout.split()
     assert Path(where).is_relative_to(tmp_path / "site")
     assert int(version) == max(int(p.name[:3]) for p in (REPO / "sql").glob("[0-9][0-9][0-9]_*.sql"))
+    handle = subprocess.run(
+        [sys.executable, "-c", "import afterward; print(afterward.__file__); print(callable(afterward.open))"],
+        cwd=tmp_path, env={"PYTHONPATH": str(tmp_path / "site"), "PATH": "/usr/bin:/bin"},
+        capture_output=True, text=True, timeout=120,
+    )
+    assert handle.returncode == 0, handle.stderr[-2000:]
+    where, ok = handle.stdout.split()
+    assert Path(where).is_relative_to(tmp_path / "site") and ok == "True"
