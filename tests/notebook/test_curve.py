@@ -2,7 +2,7 @@
 
 Two independent sides: the store's own ``zero_rates`` and ``forwards`` views (the numbers the build
 wrote, read back with plain SQL), which the rebuilt curve must give back at the stored dates to
-1e-12; and QuantLib (tests/REFERENCES.md: QuantLib, as in tests/pipeline/test_curves_quantlib.py),
+1e-12; and QuantLib (the PyPI package, used as in tests/pipeline/test_curves_quantlib.py),
 given the raw quotes written to the files, at dates off the grid, for ``linear_zero`` and
 ``log_linear_discount``.
 """
