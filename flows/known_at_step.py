@@ -65,6 +65,18 @@ def _code_version() -> str:
     return code_version()
 
 
+def _bring_schema_up_to_date(cfg: Config) -> None:
+    """A store last opened by an older version lacks the columns the copy reads (``known_since``...):
+    open it once as the writer, which applies the missing migrations, as any writing command would."""
+    from warehouse.schema import SCHEMA_FILES, schema_version
+
+    with reader(cfg.store_path) as con:
+        behind = schema_version(con) < max(v for v, _ in SCHEMA_FILES())
+    if behind:
+        with writer(cfg.store_path):
+            pass
+
+
 @contextmanager
 def known_at(cfg: Config, ts: datetime, *, audit: bool = True, model: bool = False,
              compare: bool = False) -> Iterator[KnownAt]:
@@ -76,6 +88,7 @@ def known_at(cfg: Config, ts: datetime, *, audit: bool = True, model: bool = Fal
     from flows.build_step import run_build
     from flows.realize_step import run_realize
 
+    _bring_schema_up_to_date(cfg)
     with reader(cfg.store_path) as con:
         first = first_known(con)
         version_then = audit_version_at(con, ts)

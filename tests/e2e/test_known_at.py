@@ -194,3 +194,23 @@ def test_a_report_as_known_at_says_so_at_the_top(history, tmp_path) -> None:  # 
     head = page[:page.index('<section')]
     assert "Data as known at" in head and "It is not the current record." in head
     assert "recomputed on a scratch copy" in done.stderr
+
+
+def test_a_store_last_opened_by_an_older_version_is_brought_up_to_date_first(history, tmp_path) -> None:  # noqa: ANN001
+    import duckdb
+
+    from tests.e2e.stores import clone_project
+
+    p, t1, _ = history
+    old = clone_project(p, tmp_path / "old")
+    con = duckdb.connect(str(old.cfg.store_path))
+    try:  # the store as sql/014 left it: no known_since, no audit_run
+        con.execute("DROP TABLE audit_run")
+        con.execute("ALTER TABLE load_log DROP COLUMN known_since")
+        con.execute("DELETE FROM schema_migration WHERE version = 15")
+    finally:
+        con.close()
+    done = run_cli("sql", "SELECT count(*) AS n FROM quotes", "--format", "csv", "--as-known-at", t1,
+                   "--config", str(old.root / "afterward.toml"), cwd=old.root, timeout=300)
+    assert done.returncode == 0, done.stderr
+    assert old.value("SELECT max(version) FROM schema_migration") >= 15
