@@ -360,6 +360,20 @@ def _print_notes(notes: list[str], console) -> None:  # noqa: ANN001
         console.print(line, markup=False)
 
 
+def _as_known(cfg, as_known_at: str | None, step, *, notes_to_stderr: bool, **what):  # noqa: ANN001, ANN202
+    """``step(cfg)`` on the store, or, with ``--as-known-at``, on a scratch copy of the archive as it stood
+    then (``what``: which steps :func:`flows.known_at_step.known_at` runs first), its notes printed."""
+    ts = _known_at(as_known_at)
+    if ts is None:
+        return step(cfg)
+    from flows.known_at_step import known_at
+
+    with known_at(cfg, ts, **what) as k:
+        out = step(k.cfg)
+    _print_notes(k.notes, _console(stderr=notes_to_stderr))
+    return out
+
+
 def _day(value: str | None, option: str) -> str | None:
     if value is None:
         return None
@@ -513,15 +527,8 @@ def audit(
     _in_grid(cfg, names, s_months, start, "--start", "starts", "forward_starts")
     _in_grid(cfg, names, t_months, tenor, "--tenor", "tenors", "forward_tenors")
     window = (_day(first, "--from"), _day(last, "--to"))
-    ts = _known_at(as_known_at)
-    if ts is None:
-        print_audit(run_audit(cfg, curve, *window), fmt, _console(), s_months, t_months)
-        return
-    from flows.known_at_step import known_at
-
-    with known_at(cfg, ts, audit=False) as k:
-        results = run_audit(k.cfg, curve, *window)
-    _print_notes(k.notes, _console(stderr=fmt != "table"))
+    results = _as_known(cfg, as_known_at, lambda c: run_audit(c, curve, *window), notes_to_stderr=fmt != "table",
+                        audit=False)
     print_audit(results, fmt, _console(), s_months, t_months)
 
 
@@ -546,15 +553,8 @@ def compare(
     first_day, last_day = _day(first, "--from"), _day(last, "--to")
     if first_day and last_day and first_day > last_day:
         raise _Exit(f"--from {first_day} is after --to {last_day}", 2)
-    ts = _known_at(as_known_at)
-    if ts is None:
-        print_compare(run_compare(cfg, curve, first_day, last_day), fmt, _console(), s_months, t_months)
-        return
-    from flows.known_at_step import known_at
-
-    with known_at(cfg, ts, audit=False, model=True) as k:
-        summary = run_compare(k.cfg, curve, first_day, last_day)
-    _print_notes(k.notes, _console(stderr=fmt != "table"))
+    summary = _as_known(cfg, as_known_at, lambda c: run_compare(c, curve, first_day, last_day),
+                        notes_to_stderr=fmt != "table", audit=False, model=True)
     print_compare(summary, fmt, _console(), s_months, t_months)
 
 
