@@ -12,6 +12,9 @@ from __future__ import annotations
 
 import datetime as dt
 import os
+import shutil
+import tempfile
+import weakref
 from collections.abc import Iterator
 from contextlib import contextmanager
 from pathlib import Path
@@ -33,8 +36,6 @@ from warehouse.query import refuse_writes
 
 __all__ = ["Archive"]
 
-_NOT_YET = ("as-known-at for {what} is not built yet in the notebook handle (issue 19, 'As known at'); "
-            "open the handle without as_known_at, or use quotes(), which supports it")
 
 
 def _day(value: object, name: str) -> str | None:
@@ -107,14 +108,18 @@ class Archive:
     ``curve`` a configured curve's name; ``from_`` / ``to`` inclusive as-of days (ISO strings or
     date-like); ``start`` / ``tenor`` a tenor label (``"1Y"``) or whole months (``12``).
 
-    ``as_known_at`` (naive UTC, or None): the archive as it stood then. Only :meth:`quotes` answers
-    it so far (the quotes of the loads known by then, by the rule of ``--as-known-at``); every
-    other method refuses it in one line until the handle composes the rest of issue 19.
+    ``as_known_at`` (naive UTC, or None): the archive as it stood then. :meth:`quotes` reads the
+    quote versions known by then straight from the store; the first call of any other method
+    rebuilds, realises and audits the archive as known then in a scratch store of the handle's own
+    (``--as-known-at``'s rule, :func:`flows.known_at_step.known_at_store`; seconds on a long
+    record), which the later calls reuse and which is deleted with the handle. The model and the
+    contender comparison are not recomputed there (``afterward compare --as-known-at`` does that).
     """
 
     def __init__(self, cfg: Config, as_known_at: dt.datetime | None = None) -> None:
         self.config = cfg
         self.as_known_at = as_known_at
+        self._known: Config | None = None  # the scratch store of the archive as known then, once made
 
     def __repr__(self) -> str:
         known = "" if self.as_known_at is None else f", as known at {self.as_known_at.isoformat()} UTC"
@@ -131,20 +136,31 @@ class Archive:
 
     # --- the one way in ----------------------------------------------------------------------------
     @contextmanager
-    def _connection(self) -> Iterator[duckdb.DuckDBPyConnection]:
-        """A read-only connection for one call, closed on the way out. SQL may read files only under
-        the store's folder and the inbox folders, as ``afterward sql`` without ``--allow-files``."""
+    def _connection(self, known: bool = True) -> Iterator[duckdb.DuckDBPyConnection]:
+        """A read-only connection for one call, closed on the way out: to the official store, or (with
+        ``as_known_at`` and ``known``) to the handle's scratch store of the archive as known then. SQL
+        may read files only under the store's folder and the inbox folders, as ``afterward sql``
+        without ``--allow-files``."""
         cfg = self.config
         home = Path.home().resolve()
         folders = sorted({str(p) for f in (cfg.store_path.parent, cfg.inbox, cfg.loaded, cfg.refused)
                           for p in (Path(os.path.abspath(f)), Path(f).resolve())
                           if p != home and p.parent != p})  # never a whole home folder or a root
-        with reader(cfg.store_path, external_access=False, allowed_directories=folders) as con:
+        path = cfg.store_path
+        if known and self.as_known_at is not None:
+            path = self._known_store().store_path
+            folders.append(str(path.parent))
+        with reader(path, external_access=False, allowed_directories=folders) as con:
             yield con
 
-    def _current_only(self, what: str) -> None:
-        if self.as_known_at is not None:
-            raise UserError(_NOT_YET.format(what=what))
+    def _known_store(self) -> Config:
+        if self._known is None:
+            from flows.known_at_step import known_at_store
+
+            folder = tempfile.mkdtemp(prefix="afterward-notebook-known-at-")
+            weakref.finalize(self, shutil.rmtree, folder, ignore_errors=True)  # deleted with the handle
+            self._known = known_at_store(self.config, self.as_known_at, Path(folder)).cfg
+        return self._known
 
     def _curve(self, curve: str | None) -> str | None:
         if curve is not None:
@@ -166,7 +182,6 @@ class Archive:
     def arrow(self, query: str) -> pa.Table:
         """The result of one read-only query (SELECT, or EXPLAIN of a SELECT) over the views, as a
         :class:`pyarrow.Table`; a write or a second statement is refused before the store is opened."""
-        self._current_only("sql()")
         refuse_writes(query, who="the notebook handle")
         with self._connection() as con:
             try:
@@ -186,7 +201,7 @@ class Archive:
         then (the loads whose data was available by then, ``load --known-since`` included; of each
         key the latest such load's version), as ``afterward sql --as-known-at`` sees them."""
         curve, first, last = self._curve(curve), _day(from_, "from_"), _day(to, "to")
-        with self._connection() as con:
+        with self._connection(known=False) as con:  # read from the store itself: no scratch needed
             return _frame(archive.read_quotes(con, curve, first, last, self.as_known_at))
 
     def forwards(self, curve: str, start: object = None, tenor: object = None, from_: object = None,
@@ -194,7 +209,6 @@ class Archive:
         """The ``forwards`` view of ``curve``: the official implied forward surface, one row per
         (as_of, start_months, tenor_months); ``forward_rate`` in the curve's compounding and day
         count over ``year_fraction(start_date, end_date)``, ``forward_rate_cc`` continuous."""
-        self._current_only("forwards()")
         return self._surface(archive.read_forwards, curve, start, tenor, from_, to)
 
     def outcomes(self, curve: str | None = None, start: object = None, tenor: object = None,
@@ -202,7 +216,6 @@ class Archive:
         """The ``outcomes`` view: each realised forward beside its realised and no-change rates,
         ``error_bp = (forward_rate - realized_rate) * 1e4`` and ``rw_error_bp``; filters as
         :meth:`forwards` (``curve`` optional)."""
-        self._current_only("outcomes()")
         return self._surface(archive.read_outcomes, curve, start, tenor, from_, to)
 
     def _surface(self, read, curve, start, tenor, from_, to) -> pd.DataFrame:  # noqa: ANN001
@@ -216,7 +229,6 @@ class Archive:
 
     def audit(self, curve: str | None = None) -> pd.DataFrame:
         """The ``audit_summary`` view: forecast-error statistics per (curve, start, tenor, regime)."""
-        self._current_only("audit()")
         curve = self._curve(curve)
         with self._connection() as con:
             return _frame(archive.read_audit(con, curve))
@@ -238,7 +250,6 @@ class Archive:
         without one of its quotes is rebuilt through the stored value there, which lies on its
         curve: the same curve at every node, between nodes too for ``linear_zero``.
         """
-        self._current_only("curve()")
         cfg = self.config.curve(curve)
         day = _day(as_of, "as_of")
         with self._connection() as con:

@@ -28,7 +28,7 @@ from warehouse.as_known_at import copy_known_at, first_known
 from warehouse.audit import audit_version_at
 from warehouse.connect import reader, writer
 
-__all__ = ["KnownAt", "known_at", "parse_known_at"]
+__all__ = ["KnownAt", "known_at", "known_at_store", "parse_known_at"]
 
 
 
@@ -84,6 +84,13 @@ def known_at(cfg: Config, ts: datetime, *, audit: bool = True, model: bool = Fal
     ``audit`` audited, with ``model`` modelled (when a model had been estimated by ``ts``), with
     ``compare`` compared; deleted on exit. Commands that take a window run their own step on
     ``KnownAt.cfg`` instead (``audit=False``)."""
+    with tempfile.TemporaryDirectory(prefix="afterward-known-at-") as tmp:
+        yield known_at_store(cfg, ts, Path(tmp), audit=audit, model=model, compare=compare)
+
+
+def known_at_store(cfg: Config, ts: datetime, folder: Path, *, audit: bool = True, model: bool = False,
+                   compare: bool = False) -> KnownAt:
+    """:func:`known_at`'s scratch store, made in ``folder`` (an empty folder the caller removes)."""
     from flows.audit_step import run_audit
     from flows.build_step import run_build
     from flows.realize_step import run_realize
@@ -98,30 +105,29 @@ def known_at(cfg: Config, ts: datetime, *, audit: bool = True, model: bool = Fal
     if ts < first:
         raise KnownAtError(f"--as-known-at {ts.isoformat(sep=' ')} UTC is before the first load "
                            f"({first:%Y-%m-%d %H:%M:%S} UTC)")
-    with tempfile.TemporaryDirectory(prefix="afterward-known-at-") as tmp:
-        scratch = dataclasses.replace(cfg, store_path=Path(tmp) / "as-known-at.duckdb")
-        out = KnownAt(scratch, ts, [f"as known at {ts.isoformat(sep=' ')} UTC: recomputed on a scratch copy; "
-                                    "the store is unchanged"])
-        now_version = _code_version()
-        if version_then is not None and version_then != now_version:
-            out.notes.append(f"the audit stored at that time was computed by {version_then}; this is {now_version}, "
-                             "so figures may differ")
-        with writer(scratch.store_path) as con:
-            out.copied = copy_known_at(con, str(cfg.store_path), ts)
-            run_build(scratch, con=con)
-            run_realize(scratch, full=True, con=con)
-            if audit:
-                run_audit(scratch, con=con)
-            if (model or compare) and modelled:
-                from flows.model_step import run_model
-                from pipeline.term_structure import ModelInputError
+    scratch = dataclasses.replace(cfg, store_path=Path(folder) / "as-known-at.duckdb")
+    out = KnownAt(scratch, ts, [f"as known at {ts.isoformat(sep=' ')} UTC: recomputed on a scratch copy; "
+                                "the store is unchanged"])
+    now_version = _code_version()
+    if version_then is not None and version_then != now_version:
+        out.notes.append(f"the audit stored at that time was computed by {version_then}; this is {now_version}, "
+                         "so figures may differ")
+    with writer(scratch.store_path) as con:
+        out.copied = copy_known_at(con, str(cfg.store_path), ts)
+        run_build(scratch, con=con)
+        run_realize(scratch, full=True, con=con)
+        if audit:
+            run_audit(scratch, con=con)
+        if (model or compare) and modelled:
+            from flows.model_step import run_model
+            from pipeline.term_structure import ModelInputError
 
-                try:
-                    run_model(scratch, con=con)
-                except ModelInputError:  # too little known then for the model: model_expected is absent
-                    pass
-            if compare:
-                from flows.compare_step import run_compare
+            try:
+                run_model(scratch, con=con)
+            except ModelInputError:  # too little known then for the model: model_expected is absent
+                pass
+        if compare:
+            from flows.compare_step import run_compare
 
-                run_compare(scratch, con=con)
-        yield out
+            run_compare(scratch, con=con)
+    return out
