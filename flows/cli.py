@@ -297,16 +297,12 @@ def sql(
             except duckdb.Error as exc:
                 raise _Exit(f"SQL error: {str(exc).splitlines()[0]}", 2) from None
 
-    ts = _known_at(as_known_at)
-    if ts is None:
-        table = run(cfg.store_path)
-    else:
-        from flows.known_at_step import known_at
+    def on(c) -> object:  # noqa: ANN001 - the store, or the scratch copy of the archive as known then
+        if c.store_path != cfg.store_path:
+            folders.append(c.store_path.parent)
+        return run(c.store_path)
 
-        with known_at(cfg, ts, compare=True) as k:
-            folders.append(k.cfg.store_path.parent)
-            table = run(k.cfg.store_path)
-        _print_notes(k.notes, _console(stderr=True))
+    table = _as_known(cfg, as_known_at, on, notes_to_stderr=True, compare=True)
     if table is None:
         return
     write_result(table, fmt, out, _console())
@@ -631,16 +627,10 @@ def report(
     cfg = _config(curve)
     window = (_day(first, "--from"), _day(last, "--to"))
     ts = _known_at(as_known_at)
-    if ts is None:
-        _console().print(str(write_report(cfg, out, curve, *window)))
-        return
-    from flows.known_at_step import known_at
-
-    if out is None:  # reports/ beside the real config, not inside the scratch folder
+    if ts is not None and out is None:  # reports/ beside the real config, not inside the scratch folder
         out = (cfg.path.parent if cfg.path else Path(cfg.store_path).parent) / "reports"
-    with known_at(cfg, ts, compare=True) as k:
-        path = write_report(k.cfg, out, curve, *window, as_known_at=ts)
-    _print_notes(k.notes, _console(stderr=True))
+    path = _as_known(cfg, as_known_at, lambda c: write_report(c, out, curve, *window, as_known_at=ts),
+                     notes_to_stderr=True, compare=True)
     _console().print(str(path))
 
 
