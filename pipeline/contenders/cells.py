@@ -87,13 +87,16 @@ def aligned_cells(contender_outcomes: pd.DataFrame, contenders: Sequence[str] | 
     fc = f["forecast_rate"].to_numpy(dtype=float)
     real = f["realized_rate"].to_numpy(dtype=float)
     err = f["error_bp"].to_numpy(dtype=float)
-    who = f["contender"].to_numpy()
+    who, labels = pd.factorize(f["contender"], sort=False)  # once: each cell then works on small integers
+    labels = [str(x) for x in labels]
     for (curve, start, tenor), rows in sorted(f.groupby(["curve", "start_months", "tenor_months"]).indices.items()):
-        names = contender_order(pd.unique(who[rows]).tolist())
+        present = np.unique(who[rows])
+        names = contender_order([labels[c] for c in present])
         if len(names) < 2:
             continue
-        code = {n: i for i, n in enumerate(names)}
-        col = np.array([code[w] for w in who[rows]]) if len(names) < 8 else pd.Series(who[rows]).map(code).to_numpy()
+        lut = np.empty(len(labels), dtype=np.int64)
+        lut[[labels.index(n) for n in names]] = np.arange(len(names))
+        col = lut[who[rows]]
         days, inv = np.unique(day[rows], return_inverse=True)
         k = len(names)
         count = np.zeros((days.size, k), dtype=np.int64)

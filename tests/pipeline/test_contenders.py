@@ -206,6 +206,44 @@ def test_informed_contender_wins_and_a_biased_one_is_excluded():
     assert line.startswith("1Y rate 3M ahead: the oracle view is not beaten (MCS 10 %)") and "the biased view" in line
 
 
+def test_threads_change_nothing_and_each_cell_is_arch_with_its_own_seed():
+    """Cells of THREAD_MIN_DAYS days or more run on threads, shorter ones on the caller: 1, 2 and
+    5 threads give the same frames bit for bit, and each cell's p-values are those of
+    ``arch.bootstrap.MCS`` called directly with the cell's seed (so the thread a cell ran on cannot
+    enter its bootstrap)."""
+    from arch.bootstrap import MCS
+
+    from pipeline.contenders.compare import THREAD_MIN_DAYS
+    from pipeline.contenders.confidence_set import cell_seed
+
+    rng = np.random.default_rng(31)
+    parts = []
+    for k, (start, tenor, curve, n) in enumerate([(3, 12, "govt", THREAD_MIN_DAYS + 400), (6, 24, "govt", 600),
+                                                  (12, 12, "swap", THREAD_MIN_DAYS + 400), (3, 60, "swap", 700)]):
+        o = outcomes_frame(n, 21 * max(start // 3, 1), seed=40 + k, start=start, tenor=tenor, curve=curve)
+        parts += [builtin_contenders(o, window=100, min_history=30),
+                  _contender_frame(o, "house_view", o["realized_rate"].to_numpy() + rng.normal(0, 8e-4, len(o)))]
+    co = pd.concat(parts, ignore_index=True)
+    assert sorted(c.n >= THREAD_MIN_DAYS for c in aligned_cells(co)) == [False, False, True, True]
+    one = compare(co, workers=1)
+    for w in (2, 5):
+        other = compare(co, workers=w)
+        for frame in ("scores", "tests", "confidence_set", "verdicts"):
+            pd.testing.assert_frame_equal(getattr(one, frame), getattr(other, frame), check_exact=True)
+    assert one.confidence_set.groupby(["curve", "start_months", "tenor_months"]).ngroups == 4
+    assert one.confidence_set["mcs_p_value"].between(0.001, 0.999).any()  # not only the trivial 0 / 1
+    for cell in aligned_cells(co):
+        assert len(cell.names) == 4  # forward, premium_adjusted, house_view, no_change: all distinct here
+        losses = cell.errors ** 2
+        direct = MCS(losses, size=0.1, reps=1000, block_size=cell.h, method="R", bootstrap="circular",
+                     seed=cell_seed(cell))
+        direct.compute()
+        got = one.confidence_set.set_index(["curve", "start_months", "tenor_months", "contender"])
+        for j, name in enumerate(cell.names):
+            assert got.loc[(cell.curve, cell.start_months, cell.tenor_months, name), "mcs_p_value"] == \
+                float(direct.pvalues["Pvalue"].loc[j])
+
+
 def test_mcs_agrees_with_the_independent_package():
     """On a clear-cut case (losses 0, 0.2, 5, 9 bp^2 apart, 2,000 days) arch's included set equals
     that of model-confidence-set (block bootstrap, block length h, 1,000 replications, 10 %)."""
