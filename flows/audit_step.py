@@ -32,7 +32,8 @@ from warehouse.loads import utc_now
 __all__ = ["STATE_FORMAT", "AuditRefresh", "CurveRecord", "read_outcomes", "read_record",
            "refresh_audit_incremental", "run_audit", "store_whole_audit", "whole_record_due"]
 
-STATE_FORMAT = 2  # bump when CellState's layout or meaning changes: stored states are then rebuilt
+STATE_FORMAT = 3  # bump when CellState's layout or meaning changes: stored states are then rebuilt
+# (3: term-premium bands take the fixed-b critical value, so a store audited before is recomputed once)
 
 
 @dataclass

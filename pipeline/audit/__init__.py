@@ -16,12 +16,15 @@ from pipeline.audit.statistics import (
     TERM_PREMIUM_COLUMNS,
     TIE,
     Z95,
+    interval_half_width,
     overlap_horizon,
     overlap_inference,
+    premium_band_critical,
     summarize,
     term_premium,
     verdict,
 )
 
 __all__ = ["INDICATIVE_BELOW", "MIN_OBS", "OVERLAP_COLUMNS", "SUMMARY_COLUMNS", "TERM_PREMIUM_COLUMNS", "TIE", "Z95",
-           "overlap_horizon", "overlap_inference", "summarize", "term_premium", "verdict"]
+           "interval_half_width", "overlap_horizon", "overlap_inference", "premium_band_critical", "summarize",
+           "term_premium", "verdict"]

@@ -38,6 +38,9 @@ overlap structure assumed here.
 
 from __future__ import annotations
 
+import math
+from statistics import NormalDist
+
 import numpy as np
 
 __all__ = [
@@ -58,6 +61,7 @@ PROBS = np.array([0.5, 0.6, 0.7, 0.8, 0.85, 0.9, 0.925, 0.95, 0.965, 0.975, 0.98
 C_GRID = np.array([0.0, 0.005, 0.01, 0.02, 0.035, 0.05, 0.075, 0.1, 0.125, 0.15, 0.2, 0.25, 0.3, 0.4, 0.5,
                    0.6, 0.7, 0.8, 0.9])
 _RATIO_INF = 2.0 / 3.0
+_NORMAL = NormalDist()
 
 
 def bartlett_ratio(h: int) -> float:
@@ -158,20 +162,26 @@ def _usable(n: int, h: int) -> bool:
 
 def critical_value(n: int, h: int, size: float = 0.05) -> float:
     """Two-sided critical value for the HAC t of ``n`` outcomes with overlap ``h`` at ``size``
-    (0.05: reject when ``|t|`` exceeds it). NaN when ``h >= n`` or ``h / n`` is beyond the table."""
+    (0.05: reject when ``|t|`` exceeds it). NaN when ``h >= n`` or ``h / n`` is beyond the table.
+    ``h = 1`` (no overlap, no Newey-West lag: no bandwidth to fix) is the normal's value."""
     if not _usable(n, h):
         return float("nan")
-    q = _quantiles_at(h / n)
     p = 1.0 - float(size)
     if not PROBS[0] <= p <= PROBS[-1]:
         raise ValueError(f"size must be between {1 - PROBS[-1]:g} and {1 - PROBS[0]:g}, got {size}")
+    if h == 1:
+        return _NORMAL.inv_cdf(1.0 - float(size) / 2.0)
+    q = _quantiles_at(h / n)
     return float(np.interp(p, PROBS, q)) / _scale(h)
 
 
 def pvalue_two_sided(t: float, n: int, h: int) -> float:
-    """P(|T| >= |t|) under the overlap fixed-b null of :func:`critical_value`; NaN where it is NaN."""
+    """P(|T| >= |t|) under the overlap fixed-b null of :func:`critical_value`; NaN where it is NaN
+    (``h = 1``: the normal's)."""
     if not _usable(n, h) or not np.isfinite(t):
         return float("nan")
+    if h == 1:
+        return float(math.erfc(abs(float(t)) / math.sqrt(2.0)))
     x = abs(float(t)) * _scale(h)
     q = _quantiles_at(h / n)
     tail = 1.0 - PROBS

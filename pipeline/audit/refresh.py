@@ -25,7 +25,7 @@ import numpy as np
 import pandas as pd
 
 from pipeline.audit.state import TAIL_COLUMNS, CellState, append_cell, build_cell, cell_summary, premium_increment
-from pipeline.audit.statistics import SUMMARY_COLUMNS, Z95, summarize, term_premium, verdict
+from pipeline.audit.statistics import SUMMARY_COLUMNS, premium_band_critical, summarize, term_premium, verdict
 
 __all__ = ["PREMIUM_COLUMNS", "REGIMES", "Fold", "WholeAudit", "audit_record", "build_states", "finish_summary",
            "fold", "join_audits", "regime_masks", "settle", "split_record", "summary_rows"]
@@ -68,13 +68,13 @@ def premium_frame(curve: str, pieces: list[tuple[int, int, dict]], window: int) 
         return pd.DataFrame({c: [] for c in PREMIUM_COLUMNS})
     size = [p[2]["as_of"].size for p in pieces]
     mean = np.concatenate([p[2]["premium_bp"] for p in pieces])
-    se = np.concatenate([p[2]["se_bp"] for p in pieces])
+    half = np.concatenate([p[2]["critical"] * p[2]["se_bp"] for p in pieces])
     return pd.DataFrame({
         "curve": curve,
         "as_of": np.concatenate([p[2]["as_of"] for p in pieces]),
         "start_months": np.repeat([p[0] for p in pieces], size),
         "tenor_months": np.repeat([p[1] for p in pieces], size),
-        "window_days": window, "premium_bp": mean, "lower_bp": mean - Z95 * se, "upper_bp": mean + Z95 * se,
+        "window_days": window, "premium_bp": mean, "lower_bp": mean - half, "upper_bp": mean + half,
     })
 
 
@@ -239,7 +239,8 @@ def fold(curve: str, states: States, new: pd.DataFrame, window: int) -> Fold:
             if res is None:
                 break
             if regime == "all":
-                piece = (s, m, premium_increment(tail, rows, window, res[0].premium_lags))
+                piece = (s, m, {**premium_increment(tail, rows, window, res[0].premium_lags),
+                                "critical": premium_band_critical(window, res[0].horizon)})
             updated[k] = res
         else:
             for k, res in updated.items():

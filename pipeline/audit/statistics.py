@@ -49,7 +49,7 @@ import numpy as np
 import pandas as pd
 from scipy import stats
 
-from pipeline.audit.fixed_b import pvalue_two_sided
+from pipeline.audit.fixed_b import critical_value, pvalue_two_sided
 from pipeline.audit.hac import diebold_mariano, hac_mean, hac_ols, hln_factor, rolling_mean_hac_se, wald_pvalue
 from pipeline.dates import as_days
 
@@ -59,8 +59,10 @@ __all__ = [
     "OVERLAP_COLUMNS",
     "SUMMARY_COLUMNS",
     "TERM_PREMIUM_COLUMNS",
+    "interval_half_width",
     "overlap_horizon",
     "overlap_inference",
+    "premium_band_critical",
     "summarize",
     "term_premium",
     "verdict",
@@ -281,14 +283,39 @@ def summarize(outcomes: pd.DataFrame, *, first: object = None, last: object = No
     return out
 
 
+def interval_half_width(se: np.ndarray, n: np.ndarray, lags: np.ndarray) -> np.ndarray:
+    """Half-widths of 95 % intervals ``mean -/+ c * se`` of ``audit_summary`` rows: ``c`` the
+    fixed-b 5 % critical value of ``n`` outcomes with overlap ``h = lags + 1`` (the row's own
+    Newey-West lags), 1.96 without overlap; NaN where it is undefined (``h`` above 0.9 n) or ``se``
+    is. Arrays of one shape (rows), bp in, bp out."""
+    se, n, lags = (np.asarray(a) for a in (se, n, lags))
+    out = np.full(se.shape, np.nan)
+    for key in {(int(a), int(b)) for a, b in zip(n.ravel(), lags.ravel(), strict=True)
+                if np.isfinite(a) and np.isfinite(b)}:  # a handful of distinct (n, lags) pairs
+        at = (n == key[0]) & (lags == key[1])
+        out[at] = critical_value(key[0], key[1] + 1) * se[at].astype(float)
+    return out
+
+
+def premium_band_critical(window_days: int, h: int) -> float:
+    """The 5 % two-sided critical value of a term-premium window (``window_days`` outcomes whose
+    overlap is ``h``): fixed-b (:func:`pipeline.audit.fixed_b.critical_value`); NaN where ``h`` is
+    above 0.9 of the window. At ``h = 1`` it is the normal's 1.96."""
+    return critical_value(int(window_days), max(int(h), 1))
+
+
 def term_premium(outcomes: pd.DataFrame, window_days: int) -> pd.DataFrame:
     """Trailing-window ex-post term premium with a HAC 95 % band, per (curve, start, tenor).
 
     For each as-of date with at least ``window_days`` outcomes of its horizon up to and including
     it, ``premium_bp`` is the mean ``error_bp`` of the last ``window_days`` outcomes (by as-of
-    date) and ``lower_bp`` / ``upper_bp`` are ``premium_bp -/+ 1.96 * se``, where ``se`` is the
+    date) and ``lower_bp`` / ``upper_bp`` are ``premium_bp -/+ c * se``, where ``se`` is the
     Newey-West (Bartlett) standard error of that window's mean with ``max(h-1, 0)`` lags, ``h`` the
-    :func:`overlap_horizon` of the horizon's whole record, capped at ``window_days - 1``.
+    :func:`overlap_horizon` of the horizon's whole record, capped at ``window_days - 1``, and ``c``
+    the overlap-aware fixed-b 5 % critical value of a window of ``window_days`` outcomes with
+    overlap ``h`` (:func:`pipeline.audit.fixed_b.critical_value`; 1.96 without overlap, wider as
+    ``h / window_days`` grows). Where a window holds too little for one (``h`` above 0.9 of the
+    window: about one forecast period or less) the band is NaN: no honest 95 % band exists there.
     ``window_days`` counts outcomes (observation days), not calendar days. Computed from cumulative
     sums (no loop over dates). Columns :data:`TERM_PREMIUM_COLUMNS`.
     """
@@ -305,20 +332,20 @@ def term_premium(outcomes: pd.DataFrame, window_days: int) -> pd.DataFrame:
     order = cols["_order"]
     target = as_days(outcomes["target_date"].to_numpy())[order]
     err = outcomes["error_bp"].to_numpy(dtype=float)[order]
-    pieces: dict[str, list[np.ndarray]] = {c: [] for c in ("idx", "mean", "se")}
+    pieces: dict[str, list[np.ndarray]] = {c: [] for c in ("idx", "mean", "half")}
     for g0, g1 in zip(lo, hi, strict=True):
         if g1 - g0 < w:
             continue
-        lags = min(max(overlap_horizon(cols["as_of"][g0:g1], target[g0:g1]) - 1, 0), w - 1)
-        mean, se = rolling_mean_hac_se(err[g0:g1], w, lags)
+        h = overlap_horizon(cols["as_of"][g0:g1], target[g0:g1])
+        mean, se = rolling_mean_hac_se(err[g0:g1], w, min(max(h - 1, 0), w - 1))
         pieces["idx"].append(np.arange(g0 + w - 1, g1))
         pieces["mean"].append(mean)
-        pieces["se"].append(se)
+        pieces["half"].append(premium_band_critical(w, h) * se)
     if not pieces["idx"]:
         return pd.DataFrame({c: [] for c in TERM_PREMIUM_COLUMNS})
     idx = np.concatenate(pieces["idx"])
     mean = np.concatenate(pieces["mean"])
-    se = np.concatenate(pieces["se"])
+    half = np.concatenate(pieces["half"])
     return pd.DataFrame({
         "curve": cols["curve"][idx],
         "as_of": cols["as_of"][idx],
@@ -326,8 +353,8 @@ def term_premium(outcomes: pd.DataFrame, window_days: int) -> pd.DataFrame:
         "tenor_months": cols["tenor_months"][idx],
         "window_days": np.full(idx.size, w, dtype=np.int64),
         "premium_bp": mean,
-        "lower_bp": mean - Z95 * se,
-        "upper_bp": mean + Z95 * se,
+        "lower_bp": mean - half,
+        "upper_bp": mean + half,
     })
 
 

@@ -20,6 +20,7 @@ from matplotlib.colors import ListedColormap, Normalize
 from matplotlib.lines import Line2D
 from matplotlib.patches import Patch
 
+from pipeline.audit import interval_half_width
 from pipeline.report.fmt import months_label
 from pipeline.report.model import CurveReport
 from pipeline.report.series import choose_period, period_keys, period_start, thin_frame
@@ -351,9 +352,20 @@ def _all_regime(summary: pd.DataFrame) -> pd.DataFrame:
     return s.sort_values(["tenor_months", "start_months"]).reset_index(drop=True)
 
 
+def _half(part: pd.DataFrame, mean: np.ndarray) -> np.ndarray:
+    """Error-bar half-widths of summary rows: the overlap-aware 95 % interval (fixed-b critical
+    value of the row's n and lags), 0 (no bar) where it is undefined."""
+    if not {"hac_se_bp", "n", "lags"} <= set(part.columns):
+        return np.zeros(mean.shape)
+    half = interval_half_width(part["hac_se_bp"].to_numpy(dtype=float), part["n"].to_numpy(dtype=float),
+                               part["lags"].to_numpy(dtype=float))
+    return np.where(np.isfinite(half), half, 0.0)
+
+
 def error_chart(curve: CurveReport, prefix: str) -> Chart | None:
     """Mean error (forward minus realised, bp) by forward start, one series per tenor, with the HAC
-    95 % interval ``mean +/- 1.96 * hac_se_bp`` (no bar where the HAC figure is undefined)."""
+    95 % interval ``mean +/- c * hac_se_bp``, ``c`` the overlap-aware fixed-b critical value of the
+    row's n and lags (:func:`pipeline.audit.interval_half_width`; no bar where it is undefined)."""
     s = _all_regime(curve.summary)
     s = s[s["start_months"] > 0] if not s.empty else s
     if s.empty:
@@ -371,8 +383,7 @@ def error_chart(curve: CurveReport, prefix: str) -> Chart | None:
             part = s[s["tenor_months"] == t]
             x = np.array([pos[v] for v in part["start_months"]]) + (j - (len(tenors) - 1) / 2) * width
             mean = part["mean_error_bp"].to_numpy(dtype=float)
-            se = part["hac_se_bp"].to_numpy(dtype=float) if "hac_se_bp" in part else np.full(mean.shape, np.nan)
-            half = np.where(np.isfinite(se), 1.96 * se, 0.0)
+            half = _half(part, mean)
             ax.errorbar(x, mean, yerr=half, fmt="o", color=colour, markersize=4, capsize=2.5, elinewidth=1.0,
                         label=f"{months_label(t)} forward")
         ax.set_xticks(range(len(starts)), [months_label(v) for v in starts])
@@ -381,9 +392,11 @@ def error_chart(curve: CurveReport, prefix: str) -> Chart | None:
         ax.set_title(title)
         ax.legend(loc="upper left", bbox_to_anchor=(1.0, 1.0), title="Tenor")
         svg = figure_svg(fig, prefix, title)
-    caption = ("Points: mean of forward minus realised rate over all outcomes of that horizon; bars: mean "
-               "\u00b1 1.96 Newey-West standard errors (lags for the overlap of the forecasts). Above zero: "
-               "the forwards were higher than what happened.")
+    caption = ("Points: mean of forward minus realised rate over all outcomes of that horizon; bars: 95 % "
+               "intervals from the Newey-West standard error (lags for the overlap of the forecasts) and the "
+               "overlap-aware fixed-b critical value, 1.96 without overlap and wider as the forecasts overlap "
+               "more (none where the sample holds too few periods). Above zero: the forwards were higher than "
+               "what happened.")
     return Chart(svg, title, caption)
 
 
@@ -470,7 +483,9 @@ def premium_chart(curve: CurveReport, prefix: str) -> Chart | None:
         svg = figure_svg(fig, prefix, title)
     caption = (f"Each point is the mean of forward minus realised rate over the {curve.premium_window_days} "
                f"observation days ending at that date; {_thinned_note(period)}. A band clear of zero marks a "
-               "premium distinguishable from no premium at 5 %.")
+               "premium distinguishable from no premium at 5 %; its width uses the overlap-aware fixed-b "
+               "critical value of the window, and there is no band where the window holds about one forecast "
+               "period or less (the overlap above 0.9 of the window).")
     return Chart(svg, title, caption)
 
 
@@ -669,8 +684,7 @@ def premium_regime_chart(curve: CurveReport, prefix: str) -> Chart | None:
                 colour, marker = REGIME_STYLE[regime]
                 x = np.array([pos[v] for v in part["start_months"]]) + (j - (len(regimes) - 1) / 2) * width
                 mean = part["mean_error_bp"].to_numpy(dtype=float)
-                se = part["hac_se_bp"].to_numpy(dtype=float) if "hac_se_bp" in part else np.full(mean.shape, np.nan)
-                ax.errorbar(x, mean, yerr=np.where(np.isfinite(se), 1.96 * se, 0.0), fmt=marker, color=colour,
+                ax.errorbar(x, mean, yerr=_half(part, mean), fmt=marker, color=colour,
                             markersize=3.2, capsize=2, elinewidth=0.9,
                             label={"all": "all days"}.get(regime, f"{regime} curve"))
             ax.set_xticks(range(len(starts)), [months_label(v) for v in starts], fontsize=7)
@@ -683,7 +697,8 @@ def premium_regime_chart(curve: CurveReport, prefix: str) -> Chart | None:
         fig.suptitle(title, x=0.01, ha="left", color=INK)
         svg = figure_svg(fig, prefix, title)
     caption = ("Mean of forward minus realised rate over the outcomes of each regime (the curve inverted or "
-               "normal at the first inversion pair on the day the forward was made); bars: \u00b1 1.96 Newey-West "
-               "standard errors. Inverted periods are short: their intervals are wide and rest on few "
-               "independent outcomes.")
+               "normal at the first inversion pair on the day the forward was made); bars: 95 % intervals from the "
+               "Newey-West standard error and the overlap-aware fixed-b critical value (1.96 without overlap, "
+               "wider as the forecasts overlap more; none where the sample holds too few periods). Inverted "
+               "periods are short: their intervals are wide and rest on few independent outcomes.")
     return Chart(svg, title, caption)

@@ -14,6 +14,7 @@ from collections.abc import Callable, Iterable, Sequence
 import numpy as np
 import pandas as pd
 
+from pipeline.audit import interval_half_width
 from pipeline.contenders.verdicts import contender_label
 from pipeline.report import charts
 from pipeline.report.fmt import (
@@ -521,9 +522,18 @@ def _interval(r: pd.Series) -> str:
     se = r.get("hac_se_bp")
     if is_missing(se) or is_missing(r.get("mean_error_bp")):
         return MISSING
-    lo = float(r["mean_error_bp"]) - 1.96 * float(se)
-    hi = float(r["mean_error_bp"]) + 1.96 * float(se)
+    half = float(interval_half_width(np.array([float(se)]), np.array([r["n"]]), np.array([r["lags"]]))[0])
+    if not np.isfinite(half):
+        return MISSING
+    lo = float(r["mean_error_bp"]) - half
+    hi = float(r["mean_error_bp"]) + half
     return f"{fmt_bp(lo, signed=True)} to {fmt_bp(hi, signed=True)}"
+
+
+def _band(r: pd.Series) -> str:
+    if is_missing(r.get("lower_bp")) or is_missing(r.get("upper_bp")):
+        return MISSING
+    return f"{fmt_bp(r['lower_bp'], signed=True)} to {fmt_bp(r['upper_bp'], signed=True)}"
 
 
 def _forwards_body(c: CurveReport, i: int) -> str:
@@ -625,9 +635,10 @@ def _premium_body(c: CurveReport, i: int) -> str:
             ["Start", "Tenor", _nh("Window ends"), _nh("Premium (bp)"), _nh("95 % band (bp)")],
             ([months_label(r["start_months"]), months_label(r["tenor_months"]), _n(fmt_date(r["as_of"])),
               _n(fmt_bp(r["premium_bp"], signed=True)),
-              _n(f"{fmt_bp(r['lower_bp'], signed=True)} to {fmt_bp(r['upper_bp'], signed=True)}")]
+              _n(_band(r))]
              for r in _rows(latest)),
-            caption="The latest trailing-window premium of each horizon."))
+            caption="The latest trailing-window premium of each horizon. No band (\u2013) where the window "
+                    "holds about one forecast period or less."))
     chart = charts.model_premium_chart(c, f"m{i}")
     if chart is not None:
         out.append("<h4>The model term premium</h4>")

@@ -120,10 +120,13 @@ def _assert_same(cfg) -> None:  # noqa: ANN001
     assert len(got_p) == len(ref_p)
     assert (pd.to_datetime(got_p["as_of"]).to_numpy() == pd.to_datetime(ref_p["as_of"]).to_numpy()).all()
     np.testing.assert_allclose(got_p["premium_bp"], ref_p["premium_bp"], rtol=RTOL, atol=1e-12)
-    # the band's half-width (1.96 HAC se) relative; the bounds themselves can cross zero
+    # the band's half-width (fixed-b critical value x HAC se) relative; the bounds themselves can
+    # cross zero; no band (NaN) on exactly the same rows
     half = (ref_p["upper_bp"] - ref_p["premium_bp"]).to_numpy()
+    np.testing.assert_array_equal(np.isnan(got_p["upper_bp"].to_numpy(dtype=float)), np.isnan(half))
     np.testing.assert_allclose(got_p["upper_bp"] - got_p["premium_bp"], half, rtol=RTOL, atol=1e-12)
-    np.testing.assert_allclose(got_p["lower_bp"], ref_p["lower_bp"], rtol=0, atol=RTOL * (np.abs(half).max() + 1))
+    np.testing.assert_allclose(got_p["lower_bp"], ref_p["lower_bp"], rtol=0,
+                               atol=RTOL * (np.nanmax(np.abs(half), initial=0.0) + 1))
 
 
 @pytest.fixture(scope="module")

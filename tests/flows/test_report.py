@@ -45,7 +45,7 @@ from flows.check_step import accept_day, run_checks
 from flows.load_step import load_files
 from flows.realize_step import run_realize
 from flows.report_step import write_report
-from pipeline.audit.fixed_b import pvalue_two_sided
+from pipeline.audit.fixed_b import critical_value, pvalue_two_sided
 from pipeline.config import load_config
 from pipeline.demo import demo_config_toml, generate_market, render_feed
 from pipeline.report import SECTIONS
@@ -162,8 +162,11 @@ def test_report_numbers_match_a_plain_recomputation(demo_store: Path, report: Pa
     assert cells[4] == f"{mean:+.1f}"
     assert cells[8] == f"{np.sqrt((errors['error_bp'] ** 2).mean()):.1f}"
     assert cells[9] == f"{np.sqrt((errors['rw_error_bp'] ** 2).mean()):.1f}"
-    # the HAC interval is mean +/- 1.96 standard errors, with the standard error the audit stored
-    assert cells[5] == f"{mean - 1.96 * se:+.1f} to {mean + 1.96 * se:+.1f}"
+    # the HAC interval is mean +/- c standard errors, with the standard error the audit stored and c
+    # the overlap-aware fixed-b 5 % value of (n, h) (pipeline.audit.fixed_b, its own tests hold it)
+    c = critical_value(n, h)
+    assert c > 1.96
+    assert cells[5] == f"{mean - c * se:+.1f} to {mean + c * se:+.1f}"
     # the bias p is the fixed-b p of the stored HAC t (pipeline.audit.fixed_b, its own tests hold it)
     p = pvalue_two_sided(hac_t, n, h)
     assert cells[7] == ("&lt; 0.001" if p < 0.001 else f"{p:.3f}")

@@ -20,6 +20,7 @@ import pandas as pd
 import pytest
 from PIL import Image
 
+from pipeline.audit.fixed_b import critical_value
 from pipeline.report import SECTIONS, CurveReport, ReportData, charts, choose_pairs, input_fingerprint, render_report
 from pipeline.report.fmt import (
     MISSING,
@@ -309,9 +310,16 @@ def test_page_loads_nothing_and_runs_nothing(page: str) -> None:
 
 
 def test_numbers_are_formatted_for_people(page: str) -> None:
-    # mean 18.436245 bp, se 3.645911 bp: interval 18.436245 -/+ 1.96 * 3.645911 = 11.29 .. 25.58 (by hand)
-    assert '<td class="n">+18.4</td><td class="n">+11.3 to +25.6</td>' in page
-    assert '<td class="n">-42.8</td><td class="n">-82.0 to -3.5</td>' in page   # -42.75 -/+ 39.2
+    # mean 18.436245 bp, se 3.645911 bp, n = 394, 125 lags (overlap h = 126, a third of the sample):
+    # interval 18.436245 -/+ c * 3.645911 with c the overlap-aware fixed-b 5 % value, about 5.08
+    # there (by hand from the module's table), = -0.07 .. 36.94: the plain 1.96 would give 11.3 .. 25.6
+    c = critical_value(394, 126)
+    assert 5.0 < c < 5.2
+    lo, hi = 18.436245 - c * 3.645911, 18.436245 + c * 3.645911
+    assert f'<td class="n">+18.4</td><td class="n">{fmt_bp(lo, signed=True)} to {fmt_bp(hi, signed=True)}</td>' in page
+    assert fmt_bp(lo, signed=True) == "-0.1" and fmt_bp(hi, signed=True) == "+36.9"
+    # n = 16 with 15 lags: the overlap is the whole sample, no interval can be given
+    assert f'<td class="n">-42.8</td><td class="n">{MISSING}</td>' in page
     assert '<td class="n">1.01</td><td class="n">0.790</td>' in page            # RMSE ratio, DM p
     assert '<td class="n">&lt; 0.001</td>' in page                               # DM p 0.0004
     assert '<td class="n">55 %</td>' in page                                     # hit rate
