@@ -159,13 +159,14 @@ def bench_daily(years_list: list[int], repeat: int, base: Path) -> None:
             runs = [run_daily_once(config_path, day_files) for _ in range(repeat)]
             steps = {k: statistics.median(r[2][k] for r in runs) for k in runs[0][2]}
             results[years] = (statistics.median(r[0] for r in runs), statistics.median(r[1] for r in runs), steps)
-    names = list(next(iter(results.values()))[2])
+    names = list(dict.fromkeys(n for r in results.values() for n in r[2]))  # a step not due in a run: "-"
     print()
     print(f"daily run, one new day (medians of {repeat}; seconds)")
     head = f"{'history':>8} {'work':>7} {'per run':>8} " + " ".join(f"{n:>9}" for n in names)
     print(head)
     for years, (work, per_run, steps) in results.items():
-        print(f"{str(years) + ' y':>8} {work:7.2f} {per_run:8.2f} " + " ".join(f"{steps[n]:9.3f}" for n in names))
+        cells = " ".join(f"{steps[n]:9.3f}" if n in steps else f"{'-':>9}" for n in names)
+        print(f"{str(years) + ' y':>8} {work:7.2f} {per_run:8.2f} {cells}")
     if len(results) >= 2:
         lo, hi = min(results), max(results)
         ratio = results[hi][0] / results[lo][0]

@@ -465,8 +465,12 @@ def premium_chart(curve: CurveReport, prefix: str) -> Chart | None:
             part = thin_frame(part, "as_of", period)
             x = part["as_of"].to_numpy()
             ax.axhline(0.0, color=MUTED, linewidth=0.7)
-            band = ax.fill_between(x, part["lower_bp"].to_numpy(dtype=float), part["upper_bp"].to_numpy(dtype=float),
-                                   color=OKABE_ITO["sky"], alpha=0.35, linewidth=0, label="95 % band (HAC)")
+            lower, upper = part["lower_bp"].to_numpy(dtype=float), part["upper_bp"].to_numpy(dtype=float)
+            band = ax.fill_between(x, lower, upper, color=OKABE_ITO["sky"], alpha=0.35, linewidth=0,
+                                   label="95 % band (HAC, fixed-b)")
+            if not np.isfinite(upper).any():  # say why there is no band rather than leave it out silently
+                ax.text(0.02, 0.04, "no 95 % band: the window holds about\none forecast period or less",
+                        transform=ax.transAxes, fontsize=6.5, color=MUTED, va="bottom")
             (ln,) = ax.plot(x, part["premium_bp"].to_numpy(dtype=float), color=OKABE_ITO["blue"], linewidth=1.0,
                             label="premium")
             ax.set_title(f"{months_label(st)} ahead", fontsize=8.5)

@@ -421,7 +421,10 @@ def test_report_renders_in_headless_chromium(report: Path, tmp_path: Path) -> No
         assert box["w"] > 600 and box["h"] > 150, chart
         inked, coloured, distinct = _chart_has_drawn(img, box)
         assert inked > 0.03, (chart["id"], inked)
-        assert coloured > 0.005, (chart["id"], coloured)
+        # a blank chart has no coloured pixel at all (axes and text are grey); the sparsest drawn one
+        # is the premium chart, whose panels for 1-year-ahead and longer starts have no band (the
+        # 250-day window holds about one forecast period) and only their line: about 0.5 %
+        assert coloured > 0.003, (chart["id"], coloured)
         assert distinct > 30, (chart["id"], distinct)
 
     # 2. the page asked for itself and inline images only; the recorder does see an outside request
