@@ -15,7 +15,6 @@ from pipeline.audit.statistics import (
     SUMMARY_COLUMNS,
     TERM_PREMIUM_COLUMNS,
     TIE,
-    Z95,
     interval_half_width,
     overlap_horizon,
     overlap_inference,
@@ -25,6 +24,6 @@ from pipeline.audit.statistics import (
     verdict,
 )
 
-__all__ = ["INDICATIVE_BELOW", "MIN_OBS", "OVERLAP_COLUMNS", "SUMMARY_COLUMNS", "TERM_PREMIUM_COLUMNS", "TIE", "Z95",
+__all__ = ["INDICATIVE_BELOW", "MIN_OBS", "OVERLAP_COLUMNS", "SUMMARY_COLUMNS", "TERM_PREMIUM_COLUMNS", "TIE",
            "interval_half_width", "overlap_horizon", "overlap_inference", "premium_band_critical", "summarize",
            "term_premium", "verdict"]

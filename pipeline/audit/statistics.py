@@ -47,7 +47,6 @@ from typing import Any
 
 import numpy as np
 import pandas as pd
-from scipy import stats
 
 from pipeline.audit.fixed_b import critical_value, pvalue_two_sided
 from pipeline.audit.hac import diebold_mariano, hac_mean, hac_ols, hln_factor, rolling_mean_hac_se, wald_pvalue
@@ -70,7 +69,6 @@ __all__ = [
 
 MIN_OBS = 8
 TIE = 1e-12  # decimals: a forward-spot or realised-spot difference below this is rounding noise
-Z95 = float(stats.norm.ppf(0.975))
 INDICATIVE_BELOW = 10.0  # non-overlapping forecast periods: with fewer, a cell's figures are indicative only
 
 # appended after the contract's columns (sql/014 adds them to the stored result)

@@ -522,18 +522,16 @@ def _interval(r: pd.Series) -> str:
     se = r.get("hac_se_bp")
     if is_missing(se) or is_missing(r.get("mean_error_bp")):
         return MISSING
-    half = float(interval_half_width(np.array([float(se)]), np.array([r["n"]]), np.array([r["lags"]]))[0])
-    if not np.isfinite(half):
+    half = float(interval_half_width(float(se), r["n"], r["lags"]))
+    mean = float(r["mean_error_bp"])
+    return _range(mean - half, mean + half)
+
+
+def _range(lo: object, hi: object) -> str:
+    """``lo to hi`` in signed bp; the missing mark when either end is missing (no interval)."""
+    if is_missing(lo) or is_missing(hi):
         return MISSING
-    lo = float(r["mean_error_bp"]) - half
-    hi = float(r["mean_error_bp"]) + half
     return f"{fmt_bp(lo, signed=True)} to {fmt_bp(hi, signed=True)}"
-
-
-def _band(r: pd.Series) -> str:
-    if is_missing(r.get("lower_bp")) or is_missing(r.get("upper_bp")):
-        return MISSING
-    return f"{fmt_bp(r['lower_bp'], signed=True)} to {fmt_bp(r['upper_bp'], signed=True)}"
 
 
 def _forwards_body(c: CurveReport, i: int) -> str:
@@ -635,7 +633,7 @@ def _premium_body(c: CurveReport, i: int) -> str:
             ["Start", "Tenor", _nh("Window ends"), _nh("Premium (bp)"), _nh("95 % band (bp)")],
             ([months_label(r["start_months"]), months_label(r["tenor_months"]), _n(fmt_date(r["as_of"])),
               _n(fmt_bp(r["premium_bp"], signed=True)),
-              _n(_band(r))]
+              _n(_range(r["lower_bp"], r["upper_bp"]))]
              for r in _rows(latest)),
             caption="The latest trailing-window premium of each horizon. No band (\u2013) where the window "
                     "holds about one forecast period or less."))
